@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import re
 
-from .conftest import ROOT
+from conftest import ROOT
 
 
 def readme_commands() -> dict[str, str]:

@@ -9,7 +9,7 @@ import pytest
 from hwfilter.cli import main
 from hwfilter.spec import load
 
-from .conftest import EXAMPLES
+from conftest import EXAMPLES
 
 FILES = sorted(EXAMPLES.glob("*.toml"))
 
