@@ -111,3 +111,13 @@ def test_bad_file_is_one_line_and_exit_2(tmp_path):
     assert r.returncode == 2
     assert r.stderr.strip().count("\n") == 0 and "Traceback" not in r.stderr
     assert "fixed.state_bit: unknown key (did you mean 'state_bits'?)" in r.stderr
+
+
+def test_new_writes_a_valid_starter(tmp_path, capsys):
+    out = tmp_path / "my_lp.toml"
+    assert main(["new", "my_lp", "-o", str(out)]) == 0
+    assert main(["check", str(out)]) == 0
+    assert main(["new", "my_lp", "-o", str(out)]) == 2  # no silent overwrite
+    assert "already exists" in capsys.readouterr().err
+    assert main(["new", "1bad", "-o", str(tmp_path / "x.toml")]) == 2
+    assert not (tmp_path / "x.toml").exists()
