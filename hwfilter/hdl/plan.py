@@ -1,0 +1,364 @@
+"""The hardware plan: in which clock cycle every node is computed, and the registers.
+
+A sample is *accepted* in the clock cycle where ``i.valid`` and ``i.ready`` are both high;
+that cycle is stage 0 of the sample. Every node gets a **stage**: the cycle (counted from
+acceptance) in which its combinational value belongs to that sample. Registers between
+stages advance on every clock, so a value at stage ``s`` is available at stage ``s + k``
+through ``k`` pipeline registers ("balance" registers); a one-hot *valid chain* of
+``latency`` bits tells each stage whether it holds a real sample.
+
+Scheduling rules (as-soon-as-possible, a longest-path fixpoint):
+
+==================  ===================================================================
+node                stage
+==================  ===================================================================
+input               0
+registered product  stage of its input + 1 (a pipeline register on the multiplier)
+other node          the latest stage among its inputs (earlier inputs are balanced)
+delay (state)       latched in the cycle of its input's stage (its *latch stage* ``L``)
+                    when that stage's valid bit is high; the next sample may read it
+                    from stage ``L - (cycles_per_sample - 1)`` on
+output              its input's stage; then one output register (``latency = stage + 1``)
+==================  ===================================================================
+
+A recursive loop closes through a delay: a loop holding ``R`` pipeline registers and
+``D`` delays is only schedulable when ``R <= (cycles_per_sample - 1) * D``. So at one
+sample per clock no register may sit inside a loop; pipelining ``"registered-products"``
+registers only the multipliers outside every loop (feed-forward paths), and
+``"registered-all-products"`` registers every multiplier and takes the fewest clocks per
+sample that make its loops schedulable. While a sample is in its first
+``cycles_per_sample`` cycles, ``i.ready`` is low (read from the valid chain).
+
+===========================  ==============================================================
+pipelining                   meaning
+===========================  ==============================================================
+``none``                     every node at stage 0: one sample per clock, the longest path
+                             is the whole combinational datapath between registers;
+                             latency 1 (the output register)
+``registered-products``      a register after every multiplier on a feed-forward path
+                             (products of power-of-two gains are wires, not registered);
+                             still one sample per clock
+``registered-all-products``  a register after every multiplier, inside loops too; several
+                             clocks per sample when a loop holds a register
+===========================  ==============================================================
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+
+from ..fixed import is_power_of_two
+from ..graph import Graph, GraphError
+
+__all__ = [
+    "PIPELININGS",
+    "PipelineRegister",
+    "HardwarePlan",
+    "plan",
+    "signal_names",
+    "is_multiplier",
+    "loop_nodes",
+]
+
+#: pipelining options, in order of increasing registers
+PIPELININGS = ("none", "registered-products", "registered-all-products")
+
+#: Verilog-2005 keywords (IEEE 1364-2005 Annex B) and names the ports use; a node named
+#: like one gets a suffix
+_RESERVED = frozenset(
+    """always and assign automatic begin buf bufif0 bufif1 case casex casez cell cmos config
+    deassign default defparam design disable edge else end endcase endconfig endfunction
+    endgenerate endmodule endprimitive endspecify endtable endtask event for force forever
+    fork function generate genvar highz0 highz1 if ifnone incdir include initial inout input
+    instance integer join large liblist library localparam macromodule medium module nand
+    negedge nmos nor noshowcancelled not notif0 notif1 or output parameter pmos posedge
+    primitive pull0 pull1 pulldown pullup pulsestyle_onevent pulsestyle_ondetect rcmos real
+    realtime reg release repeat rnmos rpmos rtran rtranif0 rtranif1 scalared showcancelled
+    signed small specify specparam strong0 strong1 supply0 supply1 table task time tran
+    tranif0 tranif1 tri tri0 tri1 triand trior trireg unsigned use uwire vectored wait wand
+    weak0 weak1 while wire wor xnor xor clk rst accept""".split()
+)
+
+
+@dataclass(frozen=True)
+class PipelineRegister:
+    """One pipeline register (a word of ``bits`` flip-flops, advancing every clock).
+
+    ``kind`` is ``"product"`` (after a multiplier), ``"balance"`` (delays ``source`` by
+    one more clock so that a later stage can read it) or ``"output"`` (the output word,
+    loaded when the output stage holds a sample).
+    """
+
+    name: str
+    source: str
+    kind: str
+    bits: int
+    stage: int
+
+    def as_dict(self) -> dict:
+        return {
+            "name": self.name,
+            "source": self.source,
+            "kind": self.kind,
+            "bits": self.bits,
+            "stage": self.stage,
+        }
+
+
+@dataclass(frozen=True)
+class HardwarePlan:
+    """Stages and registers of one graph under one pipelining option.
+
+    Attributes
+    ----------
+    pipelining : str
+        One of :data:`PIPELININGS`.
+    latency_cycles : int
+        Clocks from the accepting edge of a sample's input to the edge after which its
+        output is on ``o.payload`` with ``o.valid`` high.
+    cycles_per_sample : int
+        Clocks between two accepted samples at the fastest (``i.ready`` is low between).
+    stages : dict
+        Stage of every node's value (for a delay: its latch stage).
+    registered : frozenset
+        Gain nodes followed by a product register.
+    pipeline_registers : tuple of PipelineRegister
+    valid_bits : int
+        Length of the valid chain (the control flip-flops).
+    register_bits : dict
+        Flip-flops by purpose: ``state`` (delays), ``pipeline`` (product, balance and
+        output registers), ``control`` (the valid chain).
+    """
+
+    pipelining: str
+    latency_cycles: int
+    cycles_per_sample: int
+    stages: dict = field(repr=False)
+    registered: frozenset = field(repr=False)
+    pipeline_registers: tuple = field(repr=False)
+    valid_bits: int = 0
+    register_bits: dict = field(default_factory=dict)
+
+    @property
+    def total_register_bits(self) -> int:
+        return sum(self.register_bits.values())
+
+    def as_dict(self) -> dict:
+        return {
+            "pipelining": self.pipelining,
+            "latency_cycles": self.latency_cycles,
+            "cycles_per_sample": self.cycles_per_sample,
+            "register_bits": dict(self.register_bits),
+            "valid_bits": self.valid_bits,
+            "registered_products": sorted(self.registered),
+            "pipeline_registers": [r.as_dict() for r in self.pipeline_registers],
+        }
+
+
+def is_multiplier(node) -> bool:
+    """True for a gain that needs a multiplier (not zero, not a power of two)."""
+    return node.kind == "gain" and node.value not in (None, 0) and not is_power_of_two(node.value)
+
+
+def loop_nodes(graph: Graph) -> frozenset:
+    """Names of the nodes on some recursive loop (strongly connected, through delays)."""
+    index: dict[str, int] = {}
+    low: dict[str, int] = {}
+    on_stack: set[str] = set()
+    stack: list[str] = []
+    result: set[str] = set()
+    counter = 0
+    # edges u -> v when v reads u; iterate with an explicit stack (Tarjan's algorithm)
+    succ: dict[str, list[str]] = {n.name: [] for n in graph.nodes}
+    for n in graph.nodes:
+        for s in n.inputs:
+            succ[s].append(n.name)
+    for root in (n.name for n in graph.nodes):
+        if root in index:
+            continue
+        work = [(root, 0)]
+        while work:
+            v, i = work.pop()
+            if i == 0:
+                index[v] = low[v] = counter
+                counter += 1
+                stack.append(v)
+                on_stack.add(v)
+            recurse = False
+            for j in range(i, len(succ[v])):
+                w = succ[v][j]
+                if w not in index:
+                    work.append((v, j + 1))
+                    work.append((w, 0))
+                    recurse = True
+                    break
+                if w in on_stack:
+                    low[v] = min(low[v], index[w])
+            if recurse:
+                continue
+            if low[v] == index[v]:
+                comp = []
+                while True:
+                    w = stack.pop()
+                    on_stack.discard(w)
+                    comp.append(w)
+                    if w == v:
+                        break
+                if len(comp) > 1 or v in succ[v]:
+                    result.update(comp)
+            if work:
+                parent = work[-1][0]
+                low[parent] = min(low[parent], low[v])
+    return frozenset(result)
+
+
+def signal_names(graph: Graph) -> dict[str, str]:
+    """A unique, legal Verilog identifier for every node (``s1.w`` -> ``s1_w``)."""
+    names: dict[str, str] = {}
+    used: set[str] = set(_RESERVED)
+    for n in graph.nodes:
+        base = re.sub(r"\W", "_", n.name)
+        if not base or base[0].isdigit() or base[0] == "_":
+            base = "n_" + base
+        cand, k = base, 1
+        while cand in used or cand.startswith(("i__", "o__", "valid_")):
+            k += 1
+            cand = f"{base}_{k}"
+        used.add(cand)
+        names[n.name] = cand
+    return names
+
+
+def _schedule(graph: Graph, registered: frozenset, cps: int) -> dict[str, int] | None:
+    """Stages by the rules in the module docstring; None when a loop is unschedulable."""
+    stage = {n.name: 0 for n in graph.nodes}
+
+    def ready(src: str) -> int:
+        # earliest stage at which a reader may take ``src`` for the current sample
+        if graph[src].kind == "delay":
+            return max(0, stage[src] - (cps - 1))
+        return stage[src]
+
+    for _ in range(len(graph.nodes) + 2):
+        changed = False
+        for n in graph.nodes:
+            if n.kind == "input":
+                continue
+            s = max((ready(src) for src in n.inputs), default=0)
+            if n.name in registered:
+                s += 1
+            if s > stage[n.name]:
+                stage[n.name] = s
+                changed = True
+        if not changed:
+            return stage
+    return None
+
+
+def read_stage(graph: Graph, reader: str, stages: dict[str, int], registered) -> int:
+    """The stage in which node ``reader`` reads its inputs."""
+    s = stages[reader]
+    return s - 1 if reader in registered else s
+
+
+def balance_length(graph: Graph, src: str, at: int, stages: dict[str, int], cps: int) -> int:
+    """Pipeline registers needed to read ``src`` at stage ``at`` (0: read it directly)."""
+    s = stages[src]
+    if graph[src].kind == "delay":
+        # the register holds the previous sample's word from stage s - (cps - 1) to s
+        assert at >= s - (cps - 1), (src, at, s)
+        return max(0, at - s)
+    assert at >= s, (src, at, s)
+    return at - s
+
+
+def plan(graph: Graph, *, pipelining: str = "none") -> HardwarePlan:
+    """Schedule a quantized graph for hardware: stages, latency, rate and registers.
+
+    Parameters
+    ----------
+    graph : Graph
+        A quantized graph (every node has a format, every gain an integer value).
+    pipelining : str
+        One of :data:`PIPELININGS`.
+
+    Returns
+    -------
+    HardwarePlan
+
+    Raises
+    ------
+    ValueError
+        For an unknown pipelining option or a graph that is not quantized.
+    """
+    if pipelining not in PIPELININGS:
+        raise ValueError(f"pipelining must be one of {', '.join(PIPELININGS)}, not {pipelining!r}")
+    if not graph.is_quantized:
+        raise ValueError(f"graph {graph.name!r} must be quantized before hardware generation")
+    graph.check()
+    loops = loop_nodes(graph)
+    if pipelining == "none":
+        registered = frozenset()
+    elif pipelining == "registered-products":
+        registered = frozenset(
+            n.name for n in graph.nodes if is_multiplier(n) and n.name not in loops
+        )
+    else:
+        registered = frozenset(n.name for n in graph.nodes if is_multiplier(n))
+    cps = 1
+    while True:
+        stages = _schedule(graph, registered, cps)
+        if stages is not None:
+            break
+        cps += 1
+        if cps > len(graph.nodes) + 1:  # pragma: no cover - R <= nodes bounds cps
+            raise GraphError(f"graph {graph.name!r} cannot be scheduled")
+    names = signal_names(graph)
+    regs: list[PipelineRegister] = []
+    for n in graph.nodes:
+        if n.name in registered:
+            regs.append(
+                PipelineRegister(names[n.name], n.name, "product", n.format.bits, stages[n.name])
+            )
+    # balance registers: per source, as many as its latest reader needs
+    need: dict[str, int] = {}
+    for n in graph.nodes:
+        if n.kind == "input":
+            continue
+        at = (
+            stages[n.name]
+            if n.kind in ("delay", "output")
+            else read_stage(graph, n.name, stages, registered)
+        )
+        for src in n.inputs:
+            k = balance_length(graph, src, at, stages, cps)
+            need[src] = max(need.get(src, 0), k)
+    for n in graph.nodes:
+        base = stages[n.name]
+        for k in range(1, need.get(n.name, 0) + 1):
+            regs.append(
+                PipelineRegister(
+                    f"{names[n.name]}_d{k}", n.name, "balance", n.format.bits, base + k
+                )
+            )
+    out = graph.output
+    latency = stages[out.name] + 1
+    regs.append(PipelineRegister("o__payload", out.name, "output", out.format.bits, latency))
+    latch = max((stages[d.name] for d in graph.delays), default=0)
+    valid_bits = max(latency, latch, cps - 1)
+    register_bits = {
+        "state": sum(d.format.bits for d in graph.delays),
+        "pipeline": sum(r.bits for r in regs),
+        "control": valid_bits,
+    }
+    return HardwarePlan(
+        pipelining=pipelining,
+        latency_cycles=latency,
+        cycles_per_sample=cps,
+        stages=stages,
+        registered=registered,
+        pipeline_registers=tuple(regs),
+        valid_bits=valid_bits,
+        register_bits=register_bits,
+    )
