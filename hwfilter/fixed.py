@@ -97,9 +97,7 @@ class Format:
         return {"bits": self._bits, "frac": self._frac}
 
     def __eq__(self, other):
-        return (
-            isinstance(other, Format) and self._bits == other._bits and self._frac == other._frac
-        )
+        return isinstance(other, Format) and self._bits == other._bits and self._frac == other._frac
 
     def __hash__(self):
         return hash((Format, self._bits, self._frac))

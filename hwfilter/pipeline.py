@@ -111,9 +111,7 @@ def quantized_graph(
     formats = quantizer_formats(spec, g)
     rules = {
         name: {
-            k: v
-            for k, v in (("rounding", ov.rounding), ("overflow", ov.overflow))
-            if v is not None
+            k: v for k, v in (("rounding", ov.rounding), ("overflow", ov.overflow)) if v is not None
         }
         for name, ov in fx.nodes.items()
     }

@@ -42,16 +42,29 @@ def _mask(ax, spec, ripple_ref_db=0.0):
         return
     if spec.passband_ripple_db is not None:
         for lo, hi in spec.passband:
-            ax.fill_between([lo, hi], ripple_ref_db - spec.passband_ripple_db, ripple_ref_db,
-                            color="tab:green", alpha=0.15, lw=0, label="passband window")
+            ax.fill_between(
+                [lo, hi],
+                ripple_ref_db - spec.passband_ripple_db,
+                ripple_ref_db,
+                color="tab:green",
+                alpha=0.15,
+                lw=0,
+                label="passband window",
+            )
     if spec.stopband_attenuation_db is not None:
         for lo, hi in spec.stopband:
-            ax.plot([lo, hi], [ripple_ref_db - spec.stopband_attenuation_db] * 2, color="tab:red",
-                    lw=2, label="stopband ceiling")
+            ax.plot(
+                [lo, hi],
+                [ripple_ref_db - spec.stopband_attenuation_db] * 2,
+                color="tab:red",
+                lw=2,
+                label="stopband ceiling",
+            )
 
 
-def magnitude_plot(f, h_design, h_quantized, *, spec=None, zoom: bool = False,
-                   unit: str = "Hz") -> bytes:
+def magnitude_plot(
+    f, h_design, h_quantized, *, spec=None, zoom: bool = False, unit: str = "Hz"
+) -> bytes:
     """Magnitude in dB, design vs quantized coefficients; ``zoom`` shows the passband."""
     fig, ax = plt.subplots(figsize=(7.5, 3.6))
     d, q = _db(h_design), _db(h_quantized)

@@ -126,17 +126,28 @@ def render_html(results: dict, images: dict[str, bytes]) -> str:
     parts.append(
         table_html(
             r.get("nodes", []),
-            [("name", "node"), ("kind", "kind"), ("bits", "bits"), ("frac", "fraction bits"),
-             ("int_bits", "integer bits"), ("norm", "scaling norm"), ("overridden", "override")],
+            [
+                ("name", "node"),
+                ("kind", "kind"),
+                ("bits", "bits"),
+                ("frac", "fraction bits"),
+                ("int_bits", "integer bits"),
+                ("norm", "scaling norm"),
+                ("overridden", "override"),
+            ],
         )
     )
     parts.append("<h2>Roundoff noise per quantizer</h2>")
     parts.append(
         table_html(
             r.get("noise", []),
-            [("name", "quantizer"), ("bits_dropped", "bits dropped"),
-             ("gain", "noise gain"), ("power_lsb2", "output power (LSB^2)"),
-             ("mean_lsb", "output DC (LSB)")],
+            [
+                ("name", "quantizer"),
+                ("bits_dropped", "bits dropped"),
+                ("gain", "noise gain"),
+                ("power_lsb2", "output power (LSB^2)"),
+                ("mean_lsb", "output DC (LSB)"),
+            ],
         )
     )
     if r.get("resources"):
@@ -145,11 +156,19 @@ def render_html(results: dict, images: dict[str, bytes]) -> str:
         parts.append(
             table_html(
                 r["resources"],
-                [("realization", "realization"), ("multipliers", "multipliers"),
-                 ("dsp_blocks", "DSP blocks"), ("luts", "LUTs"), ("registers", "flip-flops"),
-                 ("critical_path_ns", "critical path (ns)"), ("fmax_mhz", "Fmax (MHz)"),
-                 ("latency_cycles", "latency"), ("sqnr_db", "SQNR (dB)"),
-                 ("stable", "stable"), ("fits", "fits")],
+                [
+                    ("realization", "realization"),
+                    ("multipliers", "multipliers"),
+                    ("dsp_blocks", "DSP blocks"),
+                    ("luts", "LUTs"),
+                    ("registers", "flip-flops"),
+                    ("critical_path_ns", "critical path (ns)"),
+                    ("fmax_mhz", "Fmax (MHz)"),
+                    ("latency_cycles", "latency"),
+                    ("sqnr_db", "SQNR (dB)"),
+                    ("stable", "stable"),
+                    ("fits", "fits"),
+                ],
             )
         )
     if r.get("files"):

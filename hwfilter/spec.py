@@ -318,8 +318,9 @@ def _check_name(source: str, name) -> str:
             field="name",
         )
     if name in _VERILOG_KEYWORDS or keyword.iskeyword(name):
-        raise FilterFileError(f"must not be a reserved word, not {name!r}", source=source,
-                              field="name")
+        raise FilterFileError(
+            f"must not be a reserved word, not {name!r}", source=source, field="name"
+        )
     return name
 
 
@@ -347,9 +348,7 @@ def _design(source: str, table, sample_rate):
     nyq = sample_rate / 2
     for i, e in enumerate(edges):
         if not 0 < e < nyq:
-            raise r.error(
-                "edges", f"item {i} ({e} Hz) must lie between 0 and Nyquist ({nyq} Hz)"
-            )
+            raise r.error("edges", f"item {i} ({e} Hz) must lie between 0 and Nyquist ({nyq} Hz)")
     if np.any(np.diff(edges) <= 0):
         raise r.error("edges", f"must increase, not {list(edges)!r}")
     ripple = r.number("ripple", positive=True)
@@ -384,9 +383,7 @@ def _design(source: str, table, sample_rate):
             raise r.error("order", f"must be even for a {band} window design, not {order}")
         window = r.get("window", "hamming")
         try:
-            taps = signal.firwin(
-                numtaps, edges, window=window, pass_zero=band, fs=sample_rate
-            )
+            taps = signal.firwin(numtaps, edges, window=window, pass_zero=band, fs=sample_rate)
         except ValueError as e:
             raise r.error("window", str(e)) from e
         return taps, np.array([1.0]), None, None
@@ -538,9 +535,11 @@ def _fixed(source: str, table) -> FixedSpec:
             fmt = _format(source, fname, {k: v[k] for k in ("bits", "frac") if k in v})
         nodes[name] = NodeOverride(
             format=fmt,
-            rounding=nr.choice("rounding", ROUNDING_RULES, d.rounding) if nr.has("rounding")
+            rounding=nr.choice("rounding", ROUNDING_RULES, d.rounding)
+            if nr.has("rounding")
             else None,
-            overflow=nr.choice("overflow", OVERFLOW_RULES, d.overflow) if nr.has("overflow")
+            overflow=nr.choice("overflow", OVERFLOW_RULES, d.overflow)
+            if nr.has("overflow")
             else None,
         )
     return FixedSpec(
@@ -601,8 +600,7 @@ def _response(source: str, table, sample_rate) -> ResponseSpec:
     return spec
 
 
-_TOP_KEYS = ("name", "sample_rate", "device", "filter", "realization", "fixed", "spec",
-             "hardware")
+_TOP_KEYS = ("name", "sample_rate", "device", "filter", "realization", "fixed", "spec", "hardware")
 
 
 def from_dict(data: dict, source: str = "<python>") -> FilterSpec:
@@ -622,8 +620,7 @@ def from_dict(data: dict, source: str = "<python>") -> FilterSpec:
     fir = len(np.trim_zeros(a, "b")) == 1
     if realization.form in FIR_FORMS and not fir:
         raise FilterFileError(
-            f"form {realization.form!r} needs an FIR filter (taps, or a = [1]); this one "
-            "has poles",
+            f"form {realization.form!r} needs an FIR filter (taps, or a = [1]); this one has poles",
             source=source,
             field="realization.form",
         )

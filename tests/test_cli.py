@@ -57,8 +57,7 @@ def test_simulate_roundtrip_and_json(filt, tmp_path, capsys, rng):
     xin = tmp_path / "x.txt"
     xin.write_text("\n".join(str(v) for v in x) + "\n")
     yout = tmp_path / "y.npy"
-    assert main(["simulate", str(filt), "--input", str(xin), "--output", str(yout),
-                 "--json"]) == 0
+    assert main(["simulate", str(filt), "--input", str(xin), "--output", str(yout), "--json"]) == 0
     s = json.loads(capsys.readouterr().out)
     assert s["samples"] == 3000 and s["total_overflows"] == 0
     y = np.load(yout)
@@ -76,8 +75,7 @@ def test_simulate_float_output(filt, tmp_path, capsys, rng):
     xin = tmp_path / "x.npy"
     np.save(xin, x)
     yout = tmp_path / "yf.txt"
-    assert main(["simulate", str(filt), "--input", str(xin), "--output", str(yout),
-                 "--float"]) == 0
+    assert main(["simulate", str(filt), "--input", str(xin), "--output", str(yout), "--float"]) == 0
     y = np.array([float(v) for v in yout.read_text().split()])
     sos = signal.butter(4, 0.25, output="sos")
     np.testing.assert_allclose(y, signal.sosfilt(sos, x / 32768) * 32768, atol=1e-7)
@@ -90,8 +88,10 @@ def test_simulate_default_signal(filt, capsys):
 
 @pytest.mark.parametrize(
     "words,message",
-    [("1\n2\nabc\n", "line 3: must be a signed integer word, not 'abc'"),
-     ("1\n40000\n", "line 2: word 40000 does not fit the input format")],
+    [
+        ("1\n2\nabc\n", "line 3: must be a signed integer word, not 'abc'"),
+        ("1\n40000\n", "line 2: word 40000 does not fit the input format"),
+    ],
 )
 def test_bad_input_words_exit_2_without_output(filt, tmp_path, capsys, words, message):
     xin = tmp_path / "bad.txt"
@@ -106,8 +106,9 @@ def test_bad_input_words_exit_2_without_output(filt, tmp_path, capsys, words, me
 def test_bad_file_is_one_line_and_exit_2(tmp_path):
     p = tmp_path / "bad.toml"
     p.write_text('name = "x"\n[filter]\ntaps = [1.0]\n[fixed]\nstate_bit = 12\n')
-    r = subprocess.run([sys.executable, "-m", "hwfilter", "check", str(p)],
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [sys.executable, "-m", "hwfilter", "check", str(p)], capture_output=True, text=True
+    )
     assert r.returncode == 2
     assert r.stderr.strip().count("\n") == 0 and "Traceback" not in r.stderr
     assert "fixed.state_bit: unknown key (did you mean 'state_bits'?)" in r.stderr

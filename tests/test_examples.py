@@ -5,11 +5,10 @@ from __future__ import annotations
 import json
 
 import pytest
+from conftest import EXAMPLES
 
 from hwfilter.cli import main
 from hwfilter.spec import load
-
-from conftest import EXAMPLES
 
 FILES = sorted(EXAMPLES.glob("*.toml"))
 
@@ -17,7 +16,11 @@ FILES = sorted(EXAMPLES.glob("*.toml"))
 def test_there_are_examples():
     # issue scope: vibration band-pass, hum notch, crossover pair, FIR channel filter
     assert {f.stem for f in FILES} >= {
-        "vibration_bandpass", "hum_notch", "crossover_low", "crossover_high", "sdr_channel_fir"
+        "vibration_bandpass",
+        "hum_notch",
+        "crossover_low",
+        "crossover_high",
+        "sdr_channel_fir",
     }
 
 

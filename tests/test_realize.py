@@ -105,8 +105,15 @@ def test_parallel_rejects_repeated_poles():
 def test_graph_check_messages():
     x = Node("x", "input")
     with pytest.raises(GraphError, match="delay-free loop: a -> b -> a"):
-        Graph("g", (x, Node("a", "add", ("x", "b"), (1, 1)), Node("b", "add", ("a",), (1,)),
-                    Node("out", "output", ("a",)))).check()
+        Graph(
+            "g",
+            (
+                x,
+                Node("a", "add", ("x", "b"), (1, 1)),
+                Node("b", "add", ("a",), (1,)),
+                Node("out", "output", ("a",)),
+            ),
+        ).check()
     with pytest.raises(GraphError, match="reads 'nope'"):
         Graph("g", (x, Node("out", "output", ("nope",)))).check()
     with pytest.raises(GraphError, match="kind must be one of"):

@@ -27,6 +27,7 @@ def hand_df2_biquad(x, b, a, cfrac, wfmt, ofmt, xfrac, rounding):
     w[n] = Q_w(x[n] - a1 w[n-1] - a2 w[n-2]);  y[n] = Q_y(b0 w[n] + b1 w[n-1] + b2 w[n-2])
     Q rounds the exact rational value to the target's LSB and saturates.
     """
+
     def q(value: Fraction, fmt: Format) -> int:
         scaled = value * 2**fmt.frac  # exact rational in target LSBs
         num, den = scaled.numerator, scaled.denominator
@@ -74,8 +75,10 @@ def test_fir_integer_output_equals_exact_convolution(form, rng):
     hf = g["h0"].coefficient_format.frac
     wide = Format(16 + 16 + 4, fin.frac + hf)
     g = set_quantizers(g, {"y_out": wide}, input_format=fin, rounding="floor", overflow="wrap")
-    taps = [g[f"h{min(k, 14 - k)}"].value if form == "fir-symmetric" else g[f"h{k}"].value
-            for k in range(15)]
+    taps = [
+        g[f"h{min(k, 14 - k)}"].value if form == "fir-symmetric" else g[f"h{k}"].value
+        for k in range(15)
+    ]
     x = rng.integers(-32768, 32768, size=600)
     # np.convolve on Python ints (dtype=object) is exact: the outside reference
     want = np.convolve(np.array(x, dtype=object), np.array(taps, dtype=object))[: len(x)]
@@ -97,8 +100,9 @@ def test_forty_bit_product_chain_stays_exact():
     nodes += [Node("y_out", "quantize", (src,), role="output"), Node("out", "output", ("y_out",))]
     g = quantize_coefficients(Graph("chain", tuple(nodes)).check(), 40)
     total_frac = fin.frac + sum(g[f"g{i}"].coefficient_format.frac for i in range(3))
-    g = set_quantizers(g, {"y_out": Format(160, total_frac)}, input_format=fin,
-                       rounding="floor", overflow="wrap")
+    g = set_quantizers(
+        g, {"y_out": Format(160, total_frac)}, input_format=fin, rounding="floor", overflow="wrap"
+    )
     x = [-(2**39), 2**39 - 1, 123456789012, -987654321]
     prod = [v * g["g0"].value * g["g1"].value * g["g2"].value for v in x]
     assert max(abs(p) for p in prod).bit_length() > 63
@@ -111,8 +115,15 @@ def test_forty_bit_product_chain_stays_exact():
 def test_numba_and_python_engines_agree_with_overflow_counts(rng):
     b, a = signal.ellip(4, 1, 40, 0.3)
     for overflow in ("wrap", "saturate"):
-        g = quantized(realize("c", b=b, a=a, form="cascade"), 14, Format(12, 11), Format(14, 12),
-                      Format(12, 11), "half-up", overflow)
+        g = quantized(
+            realize("c", b=b, a=a, form="cascade"),
+            14,
+            Format(12, 11),
+            Format(14, 12),
+            Format(12, 11),
+            "half-up",
+            overflow,
+        )
         x = rng.integers(-2048, 2048, size=(3, 3000))
         r1 = simulate_integer(g, x, engine="python")
         r2 = simulate_integer(g, x, engine="numba")
@@ -123,11 +134,16 @@ def test_numba_and_python_engines_agree_with_overflow_counts(rng):
 
 def test_saturation_counts_match_an_independent_count():
     # one gain of 1.5 into a 8-bit word with no headroom: count by hand with numpy
-    nodes = (Node("x", "input"), Node("g", "gain", ("x",), coefficient=1.5, group="g"),
-             Node("y_out", "quantize", ("g",), role="output"), Node("out", "output", ("y_out",)))
+    nodes = (
+        Node("x", "input"),
+        Node("g", "gain", ("x",), coefficient=1.5, group="g"),
+        Node("y_out", "quantize", ("g",), role="output"),
+        Node("out", "output", ("y_out",)),
+    )
     g = quantize_coefficients(Graph("s", nodes).check(), 8)
-    g = set_quantizers(g, {"y_out": Format(8, 7)}, input_format=Format(8, 7),
-                       rounding="floor", overflow="saturate")
+    g = set_quantizers(
+        g, {"y_out": Format(8, 7)}, input_format=Format(8, 7), rounding="floor", overflow="saturate"
+    )
     x = np.arange(-128, 128)
     res = simulate_integer(g, x, engine="python")
     exact = np.floor(x * 1.5).astype(int)
@@ -138,17 +154,25 @@ def test_saturation_counts_match_an_independent_count():
 def test_full_precision_formats_are_exact_ranges():
     # word growth (shared/references.md): a sum of N signed W-bit words needs
     # W + ceil(log2 N) bits; four taps of -32768 on a 16-bit input need 34 bits
-    nodes = [Node("x", "input"), Node("x1", "delay", ("x",)), Node("x2", "delay", ("x1",)),
-             Node("x3", "delay", ("x2",))]
+    nodes = [
+        Node("x", "input"),
+        Node("x1", "delay", ("x",)),
+        Node("x2", "delay", ("x1",)),
+        Node("x3", "delay", ("x2",)),
+    ]
     taps = ["x", "x1", "x2", "x3"]
     for i, t in enumerate(taps):
         nodes.append(Node(f"h{i}", "gain", (t,), coefficient=-1.0, group="h"))
-    nodes += [Node("acc", "add", tuple(f"h{i}" for i in range(4)), (1, 1, 1, 1)),
-              Node("y_out", "quantize", ("acc",), role="output"), Node("out", "output", ("y_out",))]
+    nodes += [
+        Node("acc", "add", tuple(f"h{i}" for i in range(4)), (1, 1, 1, 1)),
+        Node("y_out", "quantize", ("acc",), role="output"),
+        Node("out", "output", ("y_out",)),
+    ]
     g = quantize_coefficients(Graph("w", tuple(nodes)).check(), 16)
     assert g["h0"].value == -32768  # -1.0 exactly, Format(16, 15)
-    g = set_quantizers(g, {"y_out": Format(34, 30)}, input_format=Format(16, 15),
-                       rounding="floor", overflow="wrap")
+    g = set_quantizers(
+        g, {"y_out": Format(34, 30)}, input_format=Format(16, 15), rounding="floor", overflow="wrap"
+    )
     assert g["h0"].format.bits == 32  # (-1) x (-1) corner needs all 32 bits
     assert g["acc"].format.bits == 34
     res = simulate_integer(g, [-32768] * 6, engine="python")
@@ -158,12 +182,17 @@ def test_full_precision_formats_are_exact_ranges():
 def test_narrowed_sum_wraps_to_its_word():
     # two's complement sums may wrap in the middle when the final result fits (common
     # practice): a + b - c with a narrowed 17-bit accumulator still gives the exact answer
-    nodes = (Node("x", "input"), Node("x1", "delay", ("x",)),
-             Node("acc", "add", ("x", "x1", "x"), (1, 1, -1)),
-             Node("y_out", "quantize", ("acc",), role="output"), Node("out", "output", ("y_out",)))
+    nodes = (
+        Node("x", "input"),
+        Node("x1", "delay", ("x",)),
+        Node("acc", "add", ("x", "x1", "x"), (1, 1, -1)),
+        Node("y_out", "quantize", ("acc",), role="output"),
+        Node("out", "output", ("y_out",)),
+    )
     g = Graph("n", nodes).check()
-    g = set_quantizers(g, {"y_out": Format(16, 15)}, input_format=Format(16, 15),
-                       rounding="floor", overflow="wrap")
+    g = set_quantizers(
+        g, {"y_out": Format(16, 15)}, input_format=Format(16, 15), rounding="floor", overflow="wrap"
+    )
     assert g["acc"].format.bits == 18
     narrowed = infer_formats(g.replace_nodes([g["acc"].replace(format=Format(16, 15))]))
     x = [30000, 30000, -30000, 5]

@@ -69,8 +69,10 @@ def run(args) -> int:
         f"  {c['multipliers']} multipliers, {c['adders']} two-input adders, "
         f"{c['delays']} delays, {c['quantizers']} quantizers"
     )
-    print(f"  input {spec.fixed.input.bits} bits / {spec.fixed.input.frac} fraction bits, "
-          f"output {spec.fixed.output.bits} / {spec.fixed.output.frac}")
+    print(
+        f"  input {spec.fixed.input.bits} bits / {spec.fixed.input.frac} fraction bits, "
+        f"output {spec.fixed.output.bits} / {spec.fixed.output.frac}"
+    )
     print("  coefficients (design -> quantized, integer, bits/frac):")
     for co in s["coefficients"]:
         print(

@@ -11,7 +11,7 @@ from ..spec import _check_name, loads
 NAME = "new"
 HELP = "write a commented starter filter file NAME.toml"
 
-TEMPLATE = '''\
+TEMPLATE = """\
 # {name}.toml: a starter filter file written by `hwfilter new`. Every key is shown with
 # its default; delete what you do not need. Frequencies are in Hz.
 name = "{name}"                 # Verilog module name: letters, digits, underscores
@@ -62,7 +62,7 @@ section_gains = false           # power-of-two rescaling of cascade sections
 
 [hardware]
 pipelining = "none"             # none, registered-products
-'''
+"""
 
 
 def add_arguments(p):

@@ -76,9 +76,7 @@ def realize(
         last = add_section(bld, form, b, a, x, "", quantize_output=False)
     elif form == "cascade":
         if section not in SECTION_FORMS:
-            raise ValueError(
-                f"section must be one of {', '.join(SECTION_FORMS)}, not {section!r}"
-            )
+            raise ValueError(f"section must be one of {', '.join(SECTION_FORMS)}, not {section!r}")
         if sos is None:
             if pairing not in PAIRINGS:
                 raise ValueError(f"pairing must be one of {', '.join(PAIRINGS)}, not {pairing!r}")
@@ -89,14 +87,10 @@ def realize(
         for i, s in enumerate(sos, start=1):
             sec = f"s{i}"
             bld.sections.append(sec)
-            last = add_section(
-                bld, section, s[:3], s[3:], last, sec, quantize_output=i < len(sos)
-            )
+            last = add_section(bld, section, s[:3], s[3:], last, sec, quantize_output=i < len(sos))
     elif form == "parallel":
         if section not in SECTION_FORMS:
-            raise ValueError(
-                f"section must be one of {', '.join(SECTION_FORMS)}, not {section!r}"
-            )
+            raise ValueError(f"section must be one of {', '.join(SECTION_FORMS)}, not {section!r}")
         rows, direct = parallel_sections(b, a)
         outs = []
         for i, s in enumerate(rows, start=1):

@@ -75,6 +75,4 @@ class Builder:
         return self.add(name, products, section)
 
     def graph(self, form: str, section_form: str = "") -> Graph:
-        return Graph(
-            self.name, tuple(self.nodes), form, section_form, tuple(self.sections)
-        ).check()
+        return Graph(self.name, tuple(self.nodes), form, section_form, tuple(self.sections)).check()

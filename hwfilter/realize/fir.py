@@ -40,15 +40,19 @@ def add_fir(bld: Builder, form: str, taps, src: str) -> str:
         line = [src]
         for k in range(1, n):
             line.append(bld.delay(f"x{k}", line[-1]))
-        acc = bld.weighted_sum("acc", [(c, t, f"h{k}") for k, (c, t) in enumerate(zip(h, line))], "h")
+        acc = bld.weighted_sum(
+            "acc", [(c, t, f"h{k}") for k, (c, t) in enumerate(zip(h, line))], "h"
+        )
         if acc is None:
             raise ValueError("FIR taps are all zero")
         return acc
     if form == "fir-transposed":
         # y = h0 x + s1;  s_k <- h_k x + s_{k+1};  s_{N-1} <- h_{N-1} x
         sdel = [bld.delay(f"s{k}", None) for k in range(1, n)]
+
         def term(k):
             return [(1, bld.gain(f"h{k}", src, h[k], "h"))] if h[k] != 0.0 else []
+
         t0 = term(0) + ([(1, sdel[0])] if n > 1 else [])
         if not t0:
             raise ValueError("FIR taps are all zero")

@@ -26,8 +26,9 @@ def _graph(order):
 
 
 @pytest.mark.parametrize("order", [2, 8], ids=["biquad", "cascade8"])
-@pytest.mark.parametrize("channels,samples", [(1, 1_000_000), (256, 20_000)],
-                         ids=["single", "batch256"])
+@pytest.mark.parametrize(
+    "channels,samples", [(1, 1_000_000), (256, 20_000)], ids=["single", "batch256"]
+)
 def test_bench_integer_model(benchmark, order, channels, samples):
     g = _graph(order)
     x = np.random.default_rng(1).integers(-8000, 8000, size=(channels, samples))
