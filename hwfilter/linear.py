@@ -29,7 +29,7 @@ No formula depends on the realization.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from fractions import Fraction
 
 import numpy as np
@@ -98,6 +98,7 @@ class LinearModel:
     exact_rows: dict
     output: str
     coefficients: str
+    cache: dict = field(default_factory=dict, repr=False)
 
     @property
     def n_states(self) -> int:
@@ -236,61 +237,55 @@ def state_space(graph: Graph, *, coefficients: str = "quantized"):
 # -- structure ----------------------------------------------------------------------
 
 
-def _reachable(model: LinearModel, j: int) -> list[int]:
-    """States reachable from source ``j`` (structurally, through nonzero entries)."""
-    n = model.n_states
-    seen = {
-        i for i in range(n) if model.B[i, j] != 0.0 or model.exact_next[model.states[i]].get(n + j)
-    }
-    stack = list(seen)
-    while stack:
-        i = stack.pop()
-        for r in range(n):
-            if r not in seen and model.A[r, i] != 0.0:
-                seen.add(r)
-                stack.append(r)
-    return sorted(seen)
+def _closure(adj: np.ndarray, start: np.ndarray, forward: bool) -> np.ndarray:
+    """Mask of states reached from ``start`` along ``adj[r, i] != 0`` (i -> r), or back."""
+    seen = start.copy()
+    frontier = start.copy()
+    while frontier.any():
+        nxt = adj[:, frontier].any(axis=1) if forward else adj[frontier, :].any(axis=0)
+        nxt &= ~seen
+        seen |= nxt
+        frontier = nxt
+    return seen
 
 
-def _observable(model: LinearModel, dsts) -> list[int]:
-    """States that reach any of the nodes ``dsts`` (structurally)."""
-    n = model.n_states
-    seen = set()
-    for name in dsts:
-        c, _ = model.row(name)
-        seen |= {i for i in range(n) if c[i] != 0.0}
-    stack = list(seen)
-    while stack:
-        i = stack.pop()
-        for r in range(n):
-            if r not in seen and model.A[i, r] != 0.0:
-                seen.add(r)
-                stack.append(r)
-    return sorted(seen)
+def _reachable(model: LinearModel, j: int) -> np.ndarray:
+    """Mask of states reachable from source ``j`` (structurally, nonzero entries)."""
+    key = ("reach", j)
+    if key not in model.cache:
+        model.cache[key] = _closure(model.A != 0.0, model.B[:, j] != 0.0, True)
+    return model.cache[key]
+
+
+def _observable(model: LinearModel, dsts) -> np.ndarray:
+    """Mask of states that reach any of the nodes ``dsts`` (structurally)."""
+    key = ("observe", tuple(dsts))
+    if key not in model.cache:
+        start = np.zeros(model.n_states, dtype=bool)
+        for name in dsts:
+            start |= model.row(name)[0] != 0.0
+        model.cache[key] = _closure(model.A != 0.0, start, False)
+    return model.cache[key]
 
 
 def _has_loop(A: np.ndarray) -> bool:
     """Whether the nonzero pattern of ``A`` has a cycle (else A is nilpotent)."""
-    n = len(A)
-    # Kahn's algorithm on the dependency graph column -> row
-    deps = [set(np.flatnonzero(A[i])) for i in range(n)]
-    ready = [i for i in range(n) if not deps[i]]
-    done = 0
-    users = [[r for r in range(n) if A[r, i] != 0.0] for i in range(n)]
-    while ready:
-        i = ready.pop()
-        done += 1
-        for r in users[i]:
-            deps[r].discard(i)
-            if not deps[r]:
-                ready.append(r)
-    return done < n
+    adj = A != 0.0
+    alive = np.ones(len(A), dtype=bool)
+    while alive.any():
+        # states with no dependency among the living ones can be evaluated: peel them off
+        free = alive & ~(adj[:, alive].any(axis=1))
+        if not free.any():
+            return True
+        alive &= ~free
+    return False
 
 
 def _subsystem(model: LinearModel, source: str, dsts):
     """Minimal structural subsystem ``(A, b, C, d, idx)`` for ``source -> dsts``."""
+    dsts = list(dsts)
     j = model.source_index(source)
-    keep = sorted(set(_reachable(model, j)) & set(_observable(model, dsts)))
+    keep = list(np.flatnonzero(_reachable(model, j) & _observable(model, dsts)))
     A = model.A[np.ix_(keep, keep)]
     b = model.B[keep, j]
     C = np.array([model.row(k)[0][keep] for k in dsts]).reshape(len(dsts), len(keep))
@@ -312,14 +307,7 @@ def impulse_response(model: LinearModel, source: str, dsts, length: int) -> np.n
     """
     single = isinstance(dsts, str)
     dsts = [dsts] if single else list(dsts)
-    A, b, C, d, _ = _subsystem(model, source, dsts)
-    h = np.zeros((len(dsts), length))
-    if length:
-        h[:, 0] = d
-    s = b.copy()
-    for k in range(1, length):
-        h[:, k] = C @ s
-        s = A @ s
+    h = _impulse_sub(*_subsystem(model, source, dsts)[:4], length)
     return h[0] if single else h
 
 
@@ -364,6 +352,35 @@ def _eval_polynomial(h: np.ndarray, w: np.ndarray) -> np.ndarray:
     return h @ z
 
 
+def _impulse_sub(A, b, C, d, length: int) -> np.ndarray:
+    h = np.zeros((len(C), length))
+    if length:
+        h[:, 0] = d
+    s = b.copy()
+    for k in range(1, length):
+        h[:, k] = C @ s
+        s = A @ s
+    return h
+
+
+def _response_sub(A, b, C, d, w: np.ndarray, loop: bool | None = None) -> np.ndarray:
+    """``C (zI - A)^-1 b + d`` at ``z = e^{jw}`` for a subsystem (rows of ``C``)."""
+    n = len(A)
+    if loop is None:
+        loop = _has_loop(A)
+    if not loop:
+        return _eval_polynomial(_impulse_sub(A, b, C, d, n + 1), w)
+    H = np.empty((len(C), len(w)), dtype=complex)
+    eye = np.eye(n)
+    chunk = max(1, int(4e6 // max(1, n * n)))
+    for lo in range(0, len(w), chunk):
+        z = np.exp(1j * w[lo : lo + chunk])
+        M = z[:, None, None] * eye[None] - A[None]
+        X = np.linalg.solve(M, np.broadcast_to(b, (len(z), n))[..., None])[..., 0]
+        H[:, lo : lo + chunk] = (X @ C.T).T + d[:, None]
+    return H
+
+
 def frequency_response(model: LinearModel, source: str, dsts, w) -> np.ndarray:
     """``H(e^{jw})`` from ``source`` to each node of ``dsts`` at angular frequencies ``w``.
 
@@ -374,20 +391,7 @@ def frequency_response(model: LinearModel, source: str, dsts, w) -> np.ndarray:
     single = isinstance(dsts, str)
     dsts = [dsts] if single else list(dsts)
     w = np.atleast_1d(np.asarray(w, dtype=float))
-    A, b, C, d, _ = _subsystem(model, source, dsts)
-    n = len(A)
-    if not _has_loop(A):
-        h = impulse_response(model, source, dsts, n + 1)
-        H = _eval_polynomial(h, w)
-        return H[0] if single else H
-    H = np.empty((len(dsts), len(w)), dtype=complex)
-    eye = np.eye(n)
-    chunk = max(1, int(4e6 // max(1, n * n)))
-    for lo in range(0, len(w), chunk):
-        z = np.exp(1j * w[lo : lo + chunk])
-        M = z[:, None, None] * eye[None] - A[None]
-        X = np.linalg.solve(M, np.broadcast_to(b, (len(z), n))[..., None])[..., 0]
-        H[:, lo : lo + chunk] = (X @ C.T).T + d[:, None]
+    H = _response_sub(*_subsystem(model, source, dsts)[:4], w)
     return H[0] if single else H
 
 
@@ -536,11 +540,19 @@ def linf_norm(
             best, wbest = H[i, k], w[k]
             lo, hi = w[max(k - 1, 0)], w[min(k + 1, len(w) - 1)]
             if hi > lo:
+                sub = _subsystem(model, source, [name])[:4]
+                if not _has_loop(sub[0]):
+                    h = _impulse_sub(*sub, len(sub[0]) + 1)
+
+                    def mag(x, h=h):
+                        return -abs(_eval_polynomial(h, np.array([x]))[0, 0])
+                else:
+
+                    def mag(x, sub=sub):
+                        return -abs(_response_sub(*sub, np.array([x]), loop=True)[0, 0])
+
                 res = scipy.optimize.minimize_scalar(
-                    lambda x, name=name: -abs(frequency_response(model, source, name, [x])[0]),
-                    bounds=(lo, hi),
-                    method="bounded",
-                    options={"xatol": 1e-12},
+                    mag, bounds=(lo, hi), method="bounded", options={"xatol": 1e-12}
                 )
                 if -res.fun > best:
                     best, wbest = -res.fun, float(res.x)
@@ -559,17 +571,16 @@ def noise_gains(model: LinearModel, sources=None, dst: str | None = None) -> dic
     dst = dst or model.output
     sources = list(model.sources[1:] if sources is None else sources)
     c, d = model.row(dst)
-    keep = _observable(model, [dst])
+    keep = np.flatnonzero(_observable(model, [dst]))
     A = model.A[np.ix_(keep, keep)]
     out = {}
-    if keep and _spectral_radius(A) >= 1.0:
-        W = None
-    elif keep:
+    W = None  # stays None for an unstable loop: infinite gains
+    if len(keep) and _spectral_radius(A) < 1.0:
         W = scipy.linalg.solve_discrete_lyapunov(A.T, np.outer(c[keep], c[keep]))
     for s in sources:
         j = model.source_index(s)
         b = model.B[keep, j]
-        if not keep or not np.any(b):
+        if not len(keep) or not np.any(b):
             out[s] = float(d[j] ** 2)
         elif W is None:
             out[s] = np.inf

@@ -57,6 +57,7 @@ __all__ = [
     "scaling_pass",
     "scaled_formats",
     "worst_case_ranges",
+    "overflow_nodes",
     "int_bits_for",
     "quantize_products",
     "section_shifts",
@@ -159,8 +160,11 @@ def worst_case_ranges(
     node_rules: dict | None = None,
     parts: _Parts | None = None,
     model: LinearModel | None = None,
+    nodes=None,
 ) -> dict[str, tuple[Fraction, Fraction] | None]:
     """Exact bounds ``(lo, hi)`` of every quantize node's output value, in real units.
+
+    ``nodes`` asks for other nodes instead (any node names; default the quantize nodes).
 
     Valid for every input word and every sample as long as no quantizer has overflowed
     (and then none does where the bound fits the format). ``None`` marks an unbounded
@@ -168,13 +172,19 @@ def worst_case_ranges(
     ``node_rules`` give each quantizer's error interval; the dropped bits follow from
     ``formats``.
     """
-    names = [q.name for q in graph.of_kind("quantize")]
+    qnames = [q.name for q in graph.of_kind("quantize")]
+    names = qnames if nodes is None else list(nodes)
     if parts is None:
-        parts = _all_parts(model or linear_model(graph, coefficients="quantized"), names)
+        model = model or linear_model(graph, coefficients="quantized")
+        parts = _Parts(names, {})
+        for src in model.sources:
+            p = l1_parts(model, src, names)
+            for i, k in enumerate(names):
+                parts.parts[src, k] = _widen(p.positive[i], p.negative[i], p.tail[i])
     fr = _input_fracs(graph, {k: f.frac for k, f in formats.items()}, input_format.frac)
     xmin, xmax = input_format.min_value, input_format.max_value
     eint = {}
-    for k in names:
+    for k in qnames:
         rule = (node_rules or {}).get(k, {}).get("rounding", rounding)
         q = graph[k]
         src_frac = fr.get(q.inputs[0])
@@ -186,7 +196,7 @@ def worst_case_ranges(
     x = graph.input.name
     for k in names:
         terms = [(parts.parts[x, k], xmin, xmax)]
-        terms += [(parts.parts[j, k], *eint[j]) for j in names]
+        terms += [(parts.parts[j, k], *eint[j]) for j in qnames]
         lo = hi = Fraction(0)
         bounded = True
         for pt, vmin, vmax in terms:
@@ -421,6 +431,41 @@ def scaling_pass(
         k: (None if r is None else (float(r[0]), float(r[1]))) for k, r in ranges.items()
     }
     return ScalingResult(final, scaling, norms, float_ranges, overridden, bad)
+
+
+def overflow_nodes(graph: Graph) -> list[str]:
+    """Nodes of a quantized graph where overflow is possible (not excluded by the l1 bound).
+
+    Every quantize node, with its own format and rounding rule, and every sum narrowed
+    below its full-precision range, is checked against its proven range
+    (:func:`worst_case_ranges`). An empty list proves that nothing ever wraps or saturates.
+    """
+    from .formats import node_ranges
+
+    if not graph.is_quantized:
+        raise ValueError(f"graph {graph.name!r} must be quantized to check for overflow")
+    qs = graph.of_kind("quantize")
+    full = node_ranges(graph)
+    narrowed = [
+        n.name
+        for n in graph.of_kind("add")
+        if full[n.name][0] < n.format.min_int or full[n.name][1] > n.format.max_int
+    ]
+    names = [q.name for q in qs] + narrowed
+    ranges = worst_case_ranges(
+        graph,
+        {q.name: q.format for q in qs},
+        input_format=graph.input.format,
+        node_rules={q.name: {"rounding": q.rounding} for q in qs},
+        nodes=names,
+    )
+    bad = []
+    for name in names:
+        r, f = ranges[name], graph[name].format
+        top = Fraction(2) ** (f.int_bits - 1)
+        if r is None or not (r[1] < top and r[0] > -top - f.lsb):
+            bad.append(name)
+    return bad
 
 
 def scaled_formats(
