@@ -52,10 +52,17 @@ __all__ = [
 
 
 def section_members(graph: Graph) -> dict[str, list[str]]:
-    """Node names of every section (``""``: the whole graph when it has no sections)."""
+    """Node names of every section (``""``: the whole graph when it has no sections).
+
+    Nodes outside every section form one more group ``""`` when they hold a loop.
+    """
     if not graph.sections:
         return {"": [n.name for n in graph.nodes]}
-    return {s: [n.name for n in graph.nodes if n.section == s] for s in graph.sections}
+    out = {s: [n.name for n in graph.nodes if n.section == s] for s in graph.sections}
+    rest = [n.name for n in graph.nodes if not n.section]
+    if loop_blocks(linear_model(graph, nodes=rest)):
+        out[""] = rest
+    return out
 
 
 class SectionSimulator:

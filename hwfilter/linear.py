@@ -45,6 +45,7 @@ __all__ = [
     "state_space",
     "impulse_response",
     "frequency_response",
+    "transfer_function",
     "L1Parts",
     "l1_parts",
     "l1_norm",
@@ -603,6 +604,22 @@ def dc_gains(model: LinearModel, sources=None, dst: str | None = None) -> dict[s
         else:
             out[s] = float(d[0] + C[0] @ np.linalg.solve(np.eye(len(A)) - A, b))
     return out
+
+
+def transfer_function(model: LinearModel, source: str, dst: str) -> tuple[np.ndarray, np.ndarray]:
+    """``(b, a)`` in powers of z^-1 (``a[0] == 1``) of the path ``source -> dst``.
+
+    From the minimal structural subsystem by ``scipy.signal.ss2tf``; both arrays have
+    ``n + 1`` entries for ``n`` states in that subsystem. Numerically it shares the
+    weakness of every polynomial form for high orders: prefer the state space.
+    """
+    import scipy.signal
+
+    A, b, C, d, _ = _subsystem(model, source, [dst])
+    if len(A) == 0:
+        return np.array([float(d[0])]), np.array([1.0])
+    num, den = scipy.signal.ss2tf(A, b[:, None], C, d[:, None])
+    return np.asarray(num[0], dtype=float), np.asarray(den, dtype=float)
 
 
 def poles(graph_or_model, *, coefficients: str = "quantized") -> np.ndarray:

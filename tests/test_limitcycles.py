@@ -182,3 +182,20 @@ def test_sections_of_a_cascade_are_searched_separately():
     assert [emt_condition(g, s) for s in g.sections] == [
         r.condition for r in overflow_oscillations(g)
     ]
+
+
+def test_loops_outside_sections_are_searched_too():
+    import dataclasses
+
+    b, a = signal.ellip(4, 0.5, 40, 0.2)
+    g = quantize_coefficients(realize("c", b=b, a=a, form="cascade"), 16)
+    fm = {q.name: Format(18, 15) for q in g.of_kind("quantize")}
+    fm["y_out"] = FI
+    g = set_quantizers(g, fm, input_format=FI, rounding="half-even", overflow="wrap")
+    # forget that s2 is a section: its loop must still be searched, as group ""
+    loose = g.replace_nodes([n.replace(section="") for n in g.nodes if n.section == "s2"])
+    loose = dataclasses.replace(loose, sections=("s1",))
+    res = {r.section: r for r in limit_cycles(loose)}
+    assert set(res) == {"s1", ""}
+    assert set(res[""].states) == {"s2.w1", "s2.w2"}
+    assert res[""].amplitude_lsb == limit_cycles(g)[1].amplitude_lsb

@@ -21,6 +21,7 @@ from hwfilter.linear import (
     noise_gains,
     poles,
     state_space,
+    transfer_function,
 )
 from hwfilter.realize import realize
 from hwfilter.reference import simulate_float
@@ -232,3 +233,18 @@ def test_bad_names_raise():
         l2_norm(m, "x", "nope")
     with pytest.raises(ValueError, match="coefficients must be one of"):
         linear_model(g, coefficients="exact")
+
+
+def test_transfer_function_to_output_and_internal_node():
+    # scipy.signal.ss2tf on the extracted model gives back B/A (and 1/A at the direct
+    # form II internal node w)
+    b, a = signal.cheby1(3, 1.0, 0.35)
+    g = realize("c3", b=b, a=a, form="direct-form-2")
+    m = linear_model(g, coefficients="design")
+    num, den = transfer_function(m, "x", "out")
+    np.testing.assert_allclose(den, a, atol=1e-12)
+    np.testing.assert_allclose(num, b, atol=1e-12)
+    num, den = transfer_function(m, "x", "w")
+    np.testing.assert_allclose(den, a, atol=1e-12)
+    np.testing.assert_allclose(num, [1.0, 0, 0, 0], atol=1e-12)
+    assert transfer_function(m, "y_out", "out")[0].tolist() == [1.0]
