@@ -199,3 +199,46 @@ def test_loops_outside_sections_are_searched_too():
     assert set(res) == {"s1", ""}
     assert set(res[""].states) == {"s2.w1", "s2.w2"}
     assert res[""].amplitude_lsb == limit_cycles(g)[1].amplitude_lsb
+
+
+@pytest.mark.parametrize("rounding,overflow", [("half-even", "saturate"), ("floor", "wrap")])
+def test_transposed_form_matches_brute_force(rounding, overflow):
+    # an independent model of the transposed direct form II with zero input, in exact
+    # rationals: y = Q(s1), s1' = Q(-a1 y + s2), s2' = Q(-a2 y) (hwfilter.fixed.requantize)
+    from fractions import Fraction
+
+    fmt = Format(7, 4)
+    g = _section((1.0, -1.5341, 0.8127), "transposed-direct-form-2", fmt, rounding, overflow)
+    a1 = Fraction(g["a1"].value, 2 ** g["a1"].coefficient_format.frac)
+    a2 = Fraction(g["a2"].value, 2 ** g["a2"].coefficient_format.frac)
+    big = 60  # fraction bits enough to hold every exact sum as an integer
+
+    def q(v):
+        return requantize(int(v * 2**big), big, fmt, rounding, overflow)
+
+    lo, size = fmt.min_int, 2**fmt.bits
+    lsb = Fraction(1, 2**fmt.frac)
+
+    def step(s):
+        s1, s2 = s
+        y = q(s1 * lsb)
+        return (q(-a1 * y * lsb + s2 * lsb), q(-a2 * y * lsb))
+
+    best, cycles, done = 0, set(), {}
+    for s1 in range(lo, lo + size):
+        for s2 in range(lo, lo + size):
+            path, s = [], (s1, s2)
+            while s not in done and s not in path:
+                path.append(s)
+                s = step(s)
+            if s in path:  # a new cycle
+                cyc = path[path.index(s) :]
+                amp = max(max(abs(u), abs(v)) for u, v in cyc)
+                if amp:
+                    best = max(best, amp)
+                    cycles.add(frozenset(cyc))
+            for p in path:
+                done[p] = True
+    (res,) = limit_cycles(g)
+    assert res.search == "exhaustive-space"
+    assert (res.amplitude_lsb, res.cycles_found) == (best, len(cycles))

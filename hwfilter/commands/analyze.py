@@ -136,11 +136,15 @@ def render_text(res: dict) -> str:
         )
     osc = [o for o in res["overflow_oscillations"] if o["found"]]
     if osc:
+        note = (
+            "; only after an upset: no input can overflow" if not res["overflow_possible"] else ""
+        )
         for o in osc:
+            kind = "stuck overflow state" if o["period"] == 1 else "overflow oscillation"
             lines.append(
-                f"  overflow oscillation in {o['section'] or 'filter'} "
+                f"  {kind} in {o['section'] or 'filter'} "
                 f"({'/'.join(o['overflow_rules'])}): {o['amplitude_lsb']} LSB, "
-                f"period {o['period']}"
+                f"period {o['period']}, from a large initial state{note}"
             )
     else:
         rules = sorted({r for o in res["overflow_oscillations"] for r in o["overflow_rules"]})
@@ -184,7 +188,16 @@ def render_text(res: dict) -> str:
             f"{_num(r['quantized_attenuation_db'])} dB; design "
             f"{'meets' if r['design_meets_spec'] else 'misses'} it)"
         )
-    lines += ["", "nodes (norms of the response from the input; noise at the output):"]
+    rule = res.get("scaling")
+    used = (
+        f"; integer bits chosen by the {rule} norm"
+        if rule in ("l1", "l2", "linf")
+        else ("; default integer bits (no scaling)" if rule == "none" else "")
+    )
+    lines += [
+        "",
+        f"nodes (norms of the response from the input{used}; noise added at the output):",
+    ]
     rows = []
     for n in res["nodes"]:
         rows.append(
