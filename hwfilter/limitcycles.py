@@ -22,7 +22,9 @@ run until they settle, and the cycles they reach; the result is then a lower bou
 Overflow oscillations. With wrap-around a large initial state can oscillate forever
 (Ebert, Mazo & Taylor, Bell Syst. Tech. J. 48(9), 1969: a direct-form second-order
 section with ``|a1| + |a2| < 1`` has none; saturation suppresses them in a second-order
-section). The search starts from large random and corner states and runs until the
+direct-form section). Saturation of several narrower internal words (a transposed form
+scaled per state) can still leave a section stuck at full scale; the search reports
+that too. The search starts from large random and corner states and runs until the
 linear part must have decayed below one LSB (``||A^T|| * max|s| < 1``); a state still
 outside the granular box then is an overflow oscillation.
 """
