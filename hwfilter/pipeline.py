@@ -12,7 +12,9 @@ compared across realizations, each with its own format pass.
 
 from __future__ import annotations
 
-from .errors import FilterFileError
+import warnings
+
+from .errors import FilterFileError, QuantizationWarning
 from .fixed import Format
 from .formats import default_quantizer_formats, quantize_coefficients, set_quantizers
 from .graph import Graph, GraphError
@@ -65,11 +67,28 @@ def float_graph(spec: FilterSpec, *, form: str | None = None, section: str | Non
     return g
 
 
+def _stable(g: Graph) -> bool:
+    from .stability import stability
+
+    return stability(g).stable
+
+
 def quantizer_formats(spec: FilterSpec, g: Graph) -> dict[str, Format]:
     """Formats of the quantize nodes of a coefficient-quantized graph, overrides applied."""
     fx = spec.fixed
     sc = _scaling()
-    if fx.scaling != "none" and sc is not None:
+    scaled = fx.scaling != "none" and sc is not None
+    if scaled and not _stable(g):
+        # norms of an unstable structure are unbounded: keep the default formats so the
+        # analysis can still report the verdict (and what restores stability)
+        warnings.warn(
+            f"{spec.source}: the quantized {g.form} structure is unstable; scaling "
+            f"{fx.scaling!r} cannot apply, default state formats used",
+            QuantizationWarning,
+            stacklevel=3,
+        )
+        scaled = False
+    if scaled:
         formats = sc.scaled_formats(
             g,
             input_format=fx.input,
