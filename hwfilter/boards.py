@@ -1,0 +1,531 @@
+"""Device profiles: what a target FPGA offers and how fast it is (``boards/*.toml``).
+
+A profile is a TOML file with a documented schema (``docs/estimates.md``). Every number in
+it is a table ``{ value = ..., source = "..." }``: the source says where the number comes
+from (a data sheet as remembered: ``"from memory: ..."``; a tool's device database; or
+``"calibrated against nextpnr 0.11 on <date>"``). :func:`load_profile` reads one by name
+(``ecp5-25k``) or by path, checks every field and returns a :class:`DeviceProfile`; a bad
+file raises :class:`~hwfilter.errors.FilterFileError` naming the file, the field and the
+problem.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .errors import FilterFileError
+
+__all__ = [
+    "BOARDS_DIR",
+    "FAMILIES",
+    "SCHEMA_VERSION",
+    "DelayModel",
+    "DeviceProfile",
+    "MappingPass",
+    "MultiplierBlock",
+    "SynthesisFlow",
+    "load_profile",
+    "profile_names",
+]
+
+#: where the shipped profiles live (the repository's top-level ``boards/``)
+BOARDS_DIR = Path(__file__).resolve().parent.parent / "boards"
+#: device families the estimator and the synthesis cross-check know
+FAMILIES = ("ice40", "ecp5", "gowin", "generic-lut6")
+#: the profile schema this module reads
+SCHEMA_VERSION = 1
+
+
+@dataclass(frozen=True)
+class MultiplierBlock:
+    """The device's hard multiplier (DSP) block: operand widths and features.
+
+    ``absorbs_output_register`` / ``absorbs_post_adder``: the synthesis flow packs a
+    register after a product, or one addition of the product with another word, into the
+    block (so they cost no flip-flops or LUTs).
+    """
+
+    a_bits: int
+    b_bits: int
+    signed_only: bool
+    pre_adder: bool
+    accumulator_bits: int
+    absorbs_output_register: bool
+    absorbs_post_adder: bool
+
+
+@dataclass(frozen=True)
+class MappingPass:
+    """One pass of the synthesis tool's product-to-block mapping (Yosys ``mul2dsp``).
+
+    A product ``a x b`` (operand widths after the tool's width reduction; for the
+    top-level product the wider operand first) fits one block when ``a <= a_bits`` and
+    ``b <= b_bits``. A wider one is tiled: the ``a`` operand is cut into chunks of
+    ``partial_a_bits`` (less one headroom bit for ``signed_only`` blocks), then the ``b``
+    operand likewise, each chunk mapped again, the partial products summed in logic. A
+    product or chunk with ``a < min_a_bits``, ``b < min_b_bits`` or a product narrower
+    than ``min_product_bits`` is left to the next pass, and after the last pass to logic.
+    A mapped product counts ``blocks`` device multipliers.
+    """
+
+    a_bits: int
+    b_bits: int
+    min_a_bits: int
+    min_b_bits: int
+    min_product_bits: int
+    partial_a_bits: int
+    partial_b_bits: int
+    signed_only: bool
+    blocks: float
+    source: str
+
+
+@dataclass(frozen=True)
+class DelayModel:
+    """Delays in nanoseconds for the timing estimate (see ``docs/estimates.md``).
+
+    ``lut``: one LUT level; ``carry_entry``: entering and leaving a carry chain;
+    ``carry_per_bit``: each bit of the chain; ``multiplier``: a hard multiplier block,
+    combinational; ``routing``: the allowance for one net between cells; ``setup`` and
+    ``clock_to_out`` of a flip-flop.
+    """
+
+    lut: float
+    carry_entry: float
+    carry_per_bit: float
+    multiplier: float
+    routing: float
+    setup: float
+    clock_to_out: float
+
+
+@dataclass(frozen=True)
+class SynthesisFlow:
+    """How the synthesis cross-check runs the tools for this family.
+
+    ``yosys`` is the Yosys synthesis command (``synth_ecp5``); ``no_dsp_option`` the
+    option that keeps multipliers in logic (empty: the command's default); ``dsp_option``
+    the option that enables hard multipliers (empty: on by default); ``nextpnr`` names
+    the place-and-route tool from PyPI (``ecp5``, ``ice40``) or is empty when none
+    exists; ``lut_cells`` weighs cell types as LUT equivalents (``CCU2C = 2``);
+    ``dsp_cells`` weighs hard multiplier cells as blocks.
+    """
+
+    yosys: str
+    dsp_option: str
+    no_dsp_option: str
+    nextpnr: str
+    nextpnr_args: tuple[str, ...]
+    timing_with_dsp: bool
+    lut_cells: dict
+    ff_cells: tuple[str, ...]
+    dsp_cells: dict
+
+
+@dataclass(frozen=True)
+class DeviceProfile:
+    """A target device: resource counts, hard multipliers, carry chain and delays.
+
+    ``sources`` maps every numeric field (``"counts.luts"``, ``"delay.lut"``...) to
+    the source text the file gives for it.
+    """
+
+    name: str
+    family: str
+    part: str
+    description: str
+    path: str
+    luts: int
+    lut_inputs: int
+    flip_flops: int
+    multipliers: int
+    block_rams: int
+    block_ram_bits: int
+    multiplier: MultiplierBlock
+    mapping: tuple[MappingPass, ...]
+    carry_bits_per_cell: int
+    delay: DelayModel
+    synthesis: SynthesisFlow
+    default_clock_mhz: float | None = None
+    sources: dict = field(default_factory=dict, repr=False, compare=False)
+
+    def source(self, key: str) -> str:
+        """The source text of field ``key`` (for example ``"delay.lut"``)."""
+        return self.sources[key]
+
+    def as_dict(self) -> dict:
+        """Plain data (for JSON reports)."""
+        m, d = self.multiplier, self.delay
+        return {
+            "name": self.name,
+            "family": self.family,
+            "part": self.part,
+            "luts": self.luts,
+            "lut_inputs": self.lut_inputs,
+            "flip_flops": self.flip_flops,
+            "multipliers": self.multipliers,
+            "block_rams": self.block_rams,
+            "multiplier_bits": [m.a_bits, m.b_bits],
+            "default_clock_mhz": self.default_clock_mhz,
+            "delay_ns": {
+                "lut": d.lut,
+                "carry_entry": d.carry_entry,
+                "carry_per_bit": d.carry_per_bit,
+                "multiplier": d.multiplier,
+                "routing": d.routing,
+                "setup": d.setup,
+                "clock_to_out": d.clock_to_out,
+            },
+        }
+
+
+def profile_names() -> list[str]:
+    """Names of the shipped profiles (files in :data:`BOARDS_DIR`), sorted."""
+    return sorted(p.stem for p in BOARDS_DIR.glob("*.toml"))
+
+
+def load_profile(name_or_path: str | Path) -> DeviceProfile:
+    """Read a device profile by shipped name (``ecp5-25k``) or by file path.
+
+    Parameters
+    ----------
+    name_or_path : str or Path
+        A name from :func:`profile_names`, or the path of a profile file.
+
+    Returns
+    -------
+    DeviceProfile
+
+    Raises
+    ------
+    FilterFileError
+        For an unknown name, an unreadable file, invalid TOML, or any field that is
+        missing, of the wrong type, out of range or without a source.
+    """
+    text = str(name_or_path)
+    path = Path(text)
+    if not (path.suffix == ".toml" or path.exists() or "/" in text):
+        known = profile_names()
+        if text not in known:
+            close = difflib.get_close_matches(text, known, n=1)
+            hint = f" (did you mean {close[0]!r}?)" if close else ""
+            raise FilterFileError(
+                f"device must be one of {', '.join(known)} or a profile file, not {text!r}{hint}",
+                field="device",
+            )
+        path = BOARDS_DIR / f"{text}.toml"
+    src = str(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as e:
+        raise FilterFileError(f"cannot read device profile: {e.strerror}", source=src) from e
+    try:
+        data = tomllib.loads(raw.decode("utf-8"))
+    except (UnicodeDecodeError, tomllib.TOMLDecodeError) as e:
+        raise FilterFileError(f"is not valid TOML: {e}", source=src) from e
+    return _profile(src, data)
+
+
+# -- reading ----------------------------------------------------------------------------
+
+_TOP_KEYS = (
+    "schema",
+    "name",
+    "family",
+    "part",
+    "description",
+    "default_clock_mhz",
+    "counts",
+    "multiplier",
+    "logic",
+    "delay",
+    "synthesis",
+)
+_COUNT_KEYS = ("luts", "lut_inputs", "flip_flops", "multipliers", "block_rams", "block_ram_bits")
+_MULT_KEYS = (
+    "a_bits",
+    "b_bits",
+    "signed_only",
+    "pre_adder",
+    "accumulator_bits",
+    "absorbs_output_register",
+    "absorbs_post_adder",
+)
+_PASS_KEYS = (
+    "a_bits",
+    "b_bits",
+    "min_a_bits",
+    "min_b_bits",
+    "min_product_bits",
+    "partial_a_bits",
+    "partial_b_bits",
+    "signed_only",
+    "blocks",
+    "source",
+)
+_DELAY_KEYS = (
+    "lut",
+    "carry_entry",
+    "carry_per_bit",
+    "multiplier",
+    "routing",
+    "setup",
+    "clock_to_out",
+)
+_SYNTH_KEYS = (
+    "yosys",
+    "dsp_option",
+    "no_dsp_option",
+    "nextpnr",
+    "nextpnr_args",
+    "timing_with_dsp",
+    "lut_cells",
+    "ff_cells",
+    "dsp_cells",
+    "multiplier_pass",
+)
+
+
+class _Table:
+    """One table of a profile: known keys only, sourced values, errors with file + field."""
+
+    def __init__(self, src: str, prefix: str, table, allowed: tuple[str, ...], sources: dict):
+        self.src, self.prefix, self.sources = src, prefix, sources
+        if not isinstance(table, dict):
+            raise FilterFileError(f"must be a table, not {table!r}", source=src, field=prefix)
+        for key in table:
+            if key not in allowed:
+                close = difflib.get_close_matches(str(key), allowed, n=1)
+                hint = f" (did you mean {close[0]!r}?)" if close else ""
+                raise FilterFileError(
+                    f"unknown key{hint}; known keys here: {', '.join(allowed)}",
+                    source=src,
+                    field=self.field(key),
+                )
+        self.table = table
+
+    def field(self, key: str) -> str:
+        return f"{self.prefix}.{key}" if self.prefix else key
+
+    def error(self, key: str, problem: str) -> FilterFileError:
+        return FilterFileError(problem, source=self.src, field=self.field(key))
+
+    def sourced(self, key: str, *, optional: bool = False):
+        """The ``value`` of ``{ value = ..., source = "..." }``; records the source."""
+        if key not in self.table:
+            if optional:
+                return None
+            raise self.error(key, "is missing")
+        t = self.table[key]
+        if not isinstance(t, dict) or set(t) != {"value", "source"}:
+            raise self.error(key, f'must be a table {{ value = ..., source = "..." }}, not {t!r}')
+        s = t["source"]
+        if not isinstance(s, str) or not s.strip():
+            raise self.error(key, f"source must be a non-empty string, not {s!r}")
+        self.sources[self.field(key)] = s
+        return t["value"]
+
+    def integer(self, key: str, minimum: int = 0) -> int:
+        v = self.sourced(key)
+        if not isinstance(v, int) or isinstance(v, bool):
+            raise self.error(key, f"value must be an integer, not {v!r}")
+        if v < minimum:
+            raise self.error(key, f"value must be at least {minimum}, not {v!r}")
+        return v
+
+    def delay(self, key: str, *, optional: bool = False, positive: bool = False) -> float | None:
+        v = self.sourced(key, optional=optional)
+        if v is None:
+            return None
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise self.error(key, f"value must be a finite number, not {v!r}")
+        if v < 0 or (positive and v == 0):
+            need = "positive" if positive else "zero or positive"
+            raise self.error(key, f"value must be {need}, not {v!r}")
+        return float(v)
+
+    def flag(self, key: str) -> bool:
+        v = self.sourced(key)
+        if not isinstance(v, bool):
+            raise self.error(key, f"value must be true or false, not {v!r}")
+        return v
+
+    def string(self, key: str, *, default: str | None = None) -> str:
+        v = self.table.get(key, default)
+        if v is None:
+            raise self.error(key, "is missing")
+        if not isinstance(v, str):
+            raise self.error(key, f"must be a string, not {v!r}")
+        return v
+
+    def plain_flag(self, key: str, default: bool) -> bool:
+        v = self.table.get(key, default)
+        if not isinstance(v, bool):
+            raise self.error(key, f"must be true or false, not {v!r}")
+        return v
+
+    def strings(self, key: str) -> tuple[str, ...]:
+        v = self.table.get(key, [])
+        if not isinstance(v, list) or not all(isinstance(e, str) for e in v):
+            raise self.error(key, f"must be a list of strings, not {v!r}")
+        return tuple(v)
+
+    def weights(self, key: str) -> dict:
+        v = self.table.get(key, {})
+        if not isinstance(v, dict):
+            raise self.error(key, f"must be a table of cell type = weight, not {v!r}")
+        for cell, w in v.items():
+            if isinstance(w, bool) or not isinstance(w, (int, float)) or w < 0:
+                raise FilterFileError(
+                    f"must be a non-negative number, not {w!r}",
+                    source=self.src,
+                    field=f"{self.field(key)}.{cell}",
+                )
+        return dict(v)
+
+    def sub(self, key: str, allowed: tuple[str, ...]) -> _Table:
+        if key not in self.table:
+            raise self.error(key, "is missing (a table)")
+        return _Table(self.src, self.field(key), self.table[key], allowed, self.sources)
+
+
+def _passes(src: str, s: _Table, block: MultiplierBlock) -> tuple[MappingPass, ...]:
+    """The ``[[synthesis.multiplier_pass]]`` tables (one plain pass when there are none)."""
+    raw = s.table.get("multiplier_pass")
+    if raw is None:
+        return (
+            MappingPass(
+                block.a_bits,
+                block.b_bits,
+                2,
+                2,
+                0,
+                block.a_bits,
+                block.b_bits,
+                block.signed_only,
+                1.0,
+                "default: one pass over the [multiplier] block",
+            ),
+        )
+    if not isinstance(raw, list) or not raw:
+        raise s.error("multiplier_pass", f"must be a list of tables, not {raw!r}")
+    out = []
+    for i, t in enumerate(raw):
+        prefix = f"{s.field('multiplier_pass')}[{i}]"
+        p = _Table(src, prefix, t, _PASS_KEYS, {})
+        for key in _PASS_KEYS:
+            if key not in t:
+                raise p.error(key, "is missing")
+        ints = {}
+        for key in _PASS_KEYS[:7]:
+            v = t[key]
+            if not isinstance(v, int) or isinstance(v, bool) or v < 0:
+                raise p.error(key, f"must be a non-negative integer, not {v!r}")
+            ints[key] = v
+        if ints["a_bits"] < 2 or ints["b_bits"] < 2:
+            raise p.error("a_bits", "a_bits and b_bits must be at least 2")
+        for key, cap in (("partial_a_bits", "a_bits"), ("partial_b_bits", "b_bits")):
+            if not 2 <= ints[key] <= ints[cap]:
+                raise p.error(key, f"must be between 2 and {cap} ({ints[cap]}), not {ints[key]!r}")
+        if not isinstance(t["signed_only"], bool):
+            raise p.error("signed_only", f"must be true or false, not {t['signed_only']!r}")
+        w = t["blocks"]
+        if isinstance(w, bool) or not isinstance(w, (int, float)) or w <= 0:
+            raise p.error("blocks", f"must be a positive number, not {w!r}")
+        if not isinstance(t["source"], str) or not t["source"].strip():
+            raise p.error("source", f"must be a non-empty string, not {t['source']!r}")
+        s.sources[prefix] = t["source"]
+        out.append(
+            MappingPass(**ints, signed_only=t["signed_only"], blocks=float(w), source=t["source"])
+        )
+    return tuple(out)
+
+
+def _profile(src: str, data: dict) -> DeviceProfile:
+    sources: dict[str, str] = {}
+    top = _Table(src, "", data, _TOP_KEYS, sources)
+    schema = data.get("schema")
+    if schema != SCHEMA_VERSION:
+        raise top.error("schema", f"must be {SCHEMA_VERSION}, not {schema!r}")
+    name = top.string("name")
+    if not name or any(c.isspace() for c in name):
+        raise top.error("name", f"must be a non-empty name without spaces, not {name!r}")
+    family = top.string("family")
+    if family not in FAMILIES:
+        raise top.error("family", f"must be one of {', '.join(FAMILIES)}, not {family!r}")
+    part = top.string("part")
+    description = top.string("description", default="")
+    clock = top.delay("default_clock_mhz", optional=True, positive=True)
+
+    c = top.sub("counts", _COUNT_KEYS)
+    luts = c.integer("luts", 1)
+    lut_inputs = c.integer("lut_inputs", 2)
+    flip_flops = c.integer("flip_flops", 1)
+    multipliers = c.integer("multipliers", 0)
+    block_rams = c.integer("block_rams", 0)
+    block_ram_bits = c.integer("block_ram_bits", 0)
+
+    m = top.sub("multiplier", _MULT_KEYS)
+    a_bits, b_bits = m.integer("a_bits", 2), m.integer("b_bits", 2)
+    if b_bits > a_bits:
+        raise m.error("b_bits", f"value must not exceed a_bits ({a_bits}), not {b_bits!r}")
+    block = MultiplierBlock(
+        a_bits=a_bits,
+        b_bits=b_bits,
+        signed_only=m.flag("signed_only"),
+        pre_adder=m.flag("pre_adder"),
+        accumulator_bits=m.integer("accumulator_bits", 0),
+        absorbs_output_register=m.flag("absorbs_output_register"),
+        absorbs_post_adder=m.flag("absorbs_post_adder"),
+    )
+
+    lg = top.sub("logic", ("carry_bits_per_cell",))
+    carry = lg.integer("carry_bits_per_cell", 1)
+
+    d = top.sub("delay", _DELAY_KEYS)
+    delay = DelayModel(**{k: d.delay(k) for k in _DELAY_KEYS})
+
+    s = top.sub("synthesis", _SYNTH_KEYS)
+    nextpnr = s.string("nextpnr", default="")
+    if nextpnr not in ("", "ecp5", "ice40"):
+        raise s.error("nextpnr", f"must be ecp5, ice40 or empty, not {nextpnr!r}")
+    flow = SynthesisFlow(
+        yosys=s.string("yosys"),
+        dsp_option=s.string("dsp_option", default=""),
+        no_dsp_option=s.string("no_dsp_option", default=""),
+        nextpnr=nextpnr,
+        nextpnr_args=s.strings("nextpnr_args"),
+        timing_with_dsp=s.plain_flag("timing_with_dsp", True),
+        lut_cells=s.weights("lut_cells"),
+        ff_cells=s.strings("ff_cells"),
+        dsp_cells=s.weights("dsp_cells"),
+    )
+    passes = _passes(src, s, block)
+    if not flow.yosys.startswith("synth_"):
+        raise s.error("yosys", f"must be a Yosys synth_* command, not {flow.yosys!r}")
+    if not flow.lut_cells or not flow.ff_cells:
+        raise s.error("lut_cells", "lut_cells and ff_cells must name the family's cell types")
+    return DeviceProfile(
+        name=name,
+        family=family,
+        part=part,
+        description=description,
+        path=src,
+        luts=luts,
+        lut_inputs=lut_inputs,
+        flip_flops=flip_flops,
+        multipliers=multipliers,
+        block_rams=block_rams,
+        block_ram_bits=block_ram_bits,
+        multiplier=block,
+        mapping=passes,
+        carry_bits_per_cell=carry,
+        delay=delay,
+        synthesis=flow,
+        default_clock_mhz=clock,
+        sources=sources,
+    )
