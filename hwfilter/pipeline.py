@@ -67,6 +67,14 @@ def float_graph(spec: FilterSpec, *, form: str | None = None, section: str | Non
     return g
 
 
+def _node_rules(fx) -> dict[str, dict]:
+    """``[fixed.nodes]`` rounding/overflow overrides as ``{name: {"rounding": ...}}``."""
+    return {
+        name: {k: v for k, v in (("rounding", ov.rounding), ("overflow", ov.overflow)) if v}
+        for name, ov in fx.nodes.items()
+    }
+
+
 def _stable(g: Graph) -> bool:
     from .stability import stability
 
@@ -95,6 +103,9 @@ def quantizer_formats(spec: FilterSpec, g: Graph) -> dict[str, Format]:
             output_format=fx.output,
             state_bits=fx.state_bits,
             scaling=fx.scaling,
+            overrides={n: ov.format for n, ov in fx.nodes.items() if ov.format is not None},
+            rounding=fx.rounding,
+            node_rules=_node_rules(fx),
         )
     else:
         formats = default_quantizer_formats(
@@ -128,12 +139,7 @@ def quantized_graph(
             )
     g = quantize_coefficients(g, fx.coefficient_bits)
     formats = quantizer_formats(spec, g)
-    rules = {
-        name: {
-            k: v for k, v in (("rounding", ov.rounding), ("overflow", ov.overflow)) if v is not None
-        }
-        for name, ov in fx.nodes.items()
-    }
+    rules = _node_rules(fx)
     try:
         return set_quantizers(
             g,
