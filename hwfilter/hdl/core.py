@@ -27,10 +27,19 @@ from amaranth.hdl import Cat, Const, Module, Mux, Signal, signed
 from amaranth.lib import stream, wiring
 from amaranth.lib.wiring import In, Out
 
-from ..fixed import is_power_of_two, round_shift
+from ..fixed import bits_for_range, is_power_of_two
 from ..formats import node_ranges
 from ..graph import Graph
-from .plan import HardwarePlan, balance_length, plan, read_stage, signal_names
+from .plan import (
+    HardwarePlan,
+    balance_length,
+    can_overflow,
+    constant_low_bits,
+    plan,
+    read_stage,
+    rounded_range,
+    signal_names,
+)
 
 __all__ = ["FilterCore"]
 
@@ -79,6 +88,7 @@ class FilterCore(wiring.Component):
         g, p = self._graph, self._plan
         names = signal_names(g)
         ranges = node_ranges(g)
+        zeros = constant_low_bits(g)
         cps = p.cycles_per_sample
 
         accept = Signal(name="accept")
@@ -121,11 +131,11 @@ class FilterCore(wiring.Component):
                 at = read_stage(g, n.name, p.stages, p.registered)
                 args = [read(src, at) for src in n.inputs]
                 if n.kind == "gain":
-                    value = _product(args[0], n)
+                    value = _product(args[0], n, zeros[n.inputs[0]])
                 elif n.kind == "add":
-                    value = _sum(g, n, args)
+                    value = _sum(g, n, args, zeros)
                 elif n.kind == "quantize":
-                    value = _quantize(m, g, n, args[0], ranges, names[n.name])
+                    value = _quantize(m, g, n, args[0], ranges, zeros, names[n.name])
                 else:  # pragma: no cover - Graph.check rejects unknown kinds
                     raise ValueError(f"hardware does not know node kind {n.kind!r}")
                 if n.name in p.registered:
@@ -137,39 +147,74 @@ class FilterCore(wiring.Component):
         return m
 
 
-def _product(x, node):
-    """``x * value``: a constant multiplier, a shift, or zero."""
+def _product(x, node, zeros: int):
+    """``x * value``: a constant multiplier, a shift, or zero.
+
+    ``zeros`` low bits of ``x`` are known zero: the multiplier takes ``x >> zeros`` and the
+    product is shifted back, so the zeros stay plain wiring that synthesis sees.
+    """
     v = node.value
     if v == 0:
         return Const(0, signed(node.format.bits))
+    xr = x >> zeros if zeros else x
     if is_power_of_two(v):
-        shift = abs(v).bit_length() - 1
-        shifted = x << shift if shift else x
-        return shifted if v > 0 else -shifted
-    return x * Const(v, signed(node.coefficient_format.bits))
+        shift = abs(v).bit_length() - 1 + zeros
+        if v > 0:
+            return xr << shift if shift else xr
+        return (-xr) << shift if shift else -xr
+    p = xr * Const(v, signed(node.coefficient_format.bits))
+    return p << zeros if zeros else p
 
 
-def _sum(g: Graph, node, args):
-    """Signed sum of aligned terms as a balanced tree; sign of each partial sum kept."""
+def _sum(g: Graph, node, args, zeros: dict):
+    """Signed sum of aligned terms as a balanced tree of two-input adders.
+
+    Each term enters without its known-zero low bits, at its offset in the sum; an adder
+    of two words at different offsets passes the lower word's extra low bits through as
+    wiring (no carry can come from them), so no adder ever adds constant zeros.
+    """
     terms = []
     for sign, src, a in zip(node.signs, node.inputs, args):
-        shift = node.format.frac - g[src].format.frac
-        terms.append((sign, a << shift if shift else a))
+        z = zeros[src]
+        offset = node.format.frac - g[src].format.frac + z
+        terms.append((sign, a >> z if z else a, offset))
     while len(terms) > 1:
         nxt = []
         for j in range(0, len(terms) - 1, 2):
-            (sa, a), (sb, b) = terms[j], terms[j + 1]
+            (sa, a, oa), (sb, b, ob) = terms[j], terms[j + 1]
             if sa == sb:
-                nxt.append((sa, a + b))
+                nxt.append((sa, *_add2(a, oa, b, ob, "+")))
             elif sa > 0:
-                nxt.append((1, a - b))
+                nxt.append((1, *_add2(a, oa, b, ob, "-")))
             else:
-                nxt.append((1, b - a))
+                nxt.append((1, *_add2(b, ob, a, oa, "-")))
         if len(terms) % 2:
             nxt.append(terms[-1])
         terms = nxt
-    sign, total = terms[0]
-    return total if sign > 0 else -total
+    sign, total, offset = terms[0]
+    total = total if sign > 0 else -total
+    return total << offset if offset else total
+
+
+def _low_bits(a, d: int):
+    """The low ``d`` bits of signed ``a`` (sign-extended when ``a`` is narrower)."""
+    if d <= len(a):
+        return a[:d]
+    return Cat(a, a[-1].replicate(d - len(a)))
+
+
+def _add2(a, oa: int, b, ob: int, op: str):
+    """``a * 2**oa (op) b * 2**ob`` as ``(word, offset)``; ``op`` is ``"+"`` or ``"-"``."""
+    if oa < ob:
+        d = ob - oa
+        hi = a >> d
+        return Cat(_low_bits(a, d), hi + b if op == "+" else hi - b).as_signed(), oa
+    if ob < oa:
+        d = oa - ob
+        if op == "+":
+            return Cat(_low_bits(b, d), a + (b >> d)).as_signed(), ob
+        return (a << d) - b, ob  # the low bits of -b need the carry chain
+    return (a + b if op == "+" else a - b), oa
 
 
 def _round(v, k: int, rounding: str):
@@ -179,7 +224,9 @@ def _round(v, k: int, rounding: str):
     if rounding == "floor":
         return v >> k
     if rounding == "half-up":
-        return (v + half) >> k
+        # (v + 2**(k-1)) >> k without adding constant zeros: the bits below k-1 cannot
+        # carry into the result
+        return ((v >> (k - 1)) + 1) >> 1
     if rounding == "toward-zero":
         return (v + Mux(negative, (1 << k) - 1, 0)) >> k
     if rounding == "half-away":
@@ -190,25 +237,29 @@ def _round(v, k: int, rounding: str):
     raise ValueError(f"hardware does not know rounding rule {rounding!r}")
 
 
-def _quantize(m: Module, g: Graph, node, v, ranges, name: str):
-    """Rounding to the node's fraction bits, then saturation or wrap to its word."""
+def _quantize(m: Module, g: Graph, node, v, ranges, zeros: dict, name: str):
+    """Rounding to the node's fraction bits, then saturation or wrap to its word.
+
+    Known-zero low bits of the input are dropped first (that part of the shift is
+    exact under every rule); the rounded word gets exactly the bits of its range.
+    """
     src = g[node.inputs[0]]
     k = src.format.frac - node.format.frac
+    fmt = node.format
     if k > 0:
-        r = _round(v, k, node.rounding)
+        exact = min(zeros[src.name], k)
+        vr = v >> exact if exact else v
+        if k > exact:
+            rlo, rhi = rounded_range(g, node, ranges)
+            r = Signal(signed(bits_for_range(rlo, rhi)), name=f"{name}_rounded")
+            m.d.comb += r.eq(_round(vr, k - exact, node.rounding))
+        else:
+            r = vr
     elif k < 0:
         r = v << -k
     else:
         r = v
-    lo, hi, _ = ranges[src.name]
-    if lo < src.format.min_int or hi > src.format.max_int:  # a narrowed sum wraps: any word
-        lo, hi = src.format.min_int, src.format.max_int
-    rlo, rhi = round_shift(lo, k, node.rounding), round_shift(hi, k, node.rounding)
-    fmt = node.format
-    if (fmt.min_int <= rlo and rhi <= fmt.max_int) or node.overflow == "wrap":
-        return r  # in range, or wrap: the assignment keeps the low bits
+    if node.overflow == "wrap" or not can_overflow(g, node, ranges):
+        return r  # wrap, or always in range: the assignment keeps the low bits
     assert node.overflow == "saturate", node.overflow
-    rounded = Signal(signed(len(r)), name=f"{name}_rounded")
-    m.d.comb += rounded.eq(r)
-    r = rounded
     return Mux(r > fmt.max_int, fmt.max_int, Mux(r < fmt.min_int, fmt.min_int, r))

@@ -48,7 +48,8 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass, field
 
-from ..fixed import is_power_of_two
+from ..fixed import is_power_of_two, round_shift
+from ..formats import node_ranges
 from ..graph import Graph, GraphError
 
 __all__ = [
@@ -59,6 +60,9 @@ __all__ = [
     "signal_names",
     "is_multiplier",
     "loop_nodes",
+    "can_overflow",
+    "rounded_range",
+    "constant_low_bits",
 ]
 
 #: pipelining options, in order of increasing registers
@@ -142,6 +146,7 @@ class HardwarePlan:
 
     @property
     def total_register_bits(self) -> int:
+        """Flip-flops of every register word (state + pipeline + control)."""
         return sum(self.register_bits.values())
 
     def as_dict(self) -> dict:
@@ -211,6 +216,67 @@ def loop_nodes(graph: Graph) -> frozenset:
                 parent = work[-1][0]
                 low[parent] = min(low[parent], low[v])
     return frozenset(result)
+
+
+def rounded_range(graph: Graph, node, ranges: dict | None = None) -> tuple[int, int]:
+    """Exact range of quantize ``node``'s input after rounding, before overflow."""
+    ranges = node_ranges(graph) if ranges is None else ranges
+    src = graph[node.inputs[0]]
+    lo, hi, _ = ranges[src.name]
+    if lo < src.format.min_int or hi > src.format.max_int:  # a narrowed sum wraps: any word
+        lo, hi = src.format.min_int, src.format.max_int
+    k = src.format.frac - node.format.frac
+    return round_shift(lo, k, node.rounding), round_shift(hi, k, node.rounding)
+
+
+def can_overflow(graph: Graph, node, ranges: dict | None = None) -> bool:
+    """True when quantize ``node``'s rounded input can leave its word (so overflow acts)."""
+    rlo, rhi = rounded_range(graph, node, ranges)
+    return rlo < node.format.min_int or rhi > node.format.max_int
+
+
+def constant_low_bits(graph: Graph) -> dict[str, int]:
+    """Low bits of every node's word that are zero for every input (known zeros).
+
+    A product by an even constant, a fraction alignment shift or an exact requantization
+    leaves its low bits zero: registers holding them are constant there, and synthesis
+    removes those flip-flops. Saturation can produce the odd word ``max_int``, so a
+    saturating quantizer that can overflow has none. A delay knows its input's zeros
+    only as far as constant propagation from reset shows them (the least fixpoint:
+    start from none and repeat), which is also all that synthesis can prove.
+    """
+    ranges = node_ranges(graph)
+    order = graph.topological_order()
+    tz = {d.name: 0 for d in graph.delays}
+    while True:
+        for n in order:
+            if n.kind == "delay":
+                continue
+            bits = n.format.bits
+            if n.kind == "input":
+                z = 0
+            elif n.kind == "output":
+                z = tz[n.inputs[0]]
+            elif n.kind == "gain":
+                v = abs(n.value)
+                z = bits if v == 0 else tz[n.inputs[0]] + (v & -v).bit_length() - 1
+            elif n.kind == "add":
+                z = min(tz[s] + n.format.frac - graph[s].format.frac for s in n.inputs)
+            else:
+                src = graph[n.inputs[0]]
+                k = src.format.frac - n.format.frac
+                z = tz[src.name] - k if tz[src.name] >= k else 0
+                if n.overflow == "saturate" and can_overflow(graph, n, ranges):
+                    z = 0
+            tz[n.name] = min(max(z, 0), bits)
+        changed = False
+        for d in graph.delays:
+            z = min(tz[d.inputs[0]], d.format.bits)
+            if z > tz[d.name]:
+                tz[d.name] = z
+                changed = True
+        if not changed:
+            return tz
 
 
 def signal_names(graph: Graph) -> dict[str, str]:

@@ -267,7 +267,7 @@ class _workdir:
     """A given folder, or a temporary one removed afterwards."""
 
     def __init__(self, path):
-        self._given = Path(path) if path is not None else None
+        self._given = Path(path).resolve() if path is not None else None
         self._tmp = None
 
     def __enter__(self) -> Path:
@@ -322,7 +322,7 @@ def build_verilator(
             raise ValueError(
                 f"Verilator harness {what} word must be at most 64 bits, not {fmt.bits}"
             )
-    wd = Path(workdir)
+    wd = Path(workdir).resolve()
     wd.mkdir(parents=True, exist_ok=True)
     name = module_name(graph)
     (wd / f"{name}.v").write_text(generate_verilog(graph, pipelining=pipelining))

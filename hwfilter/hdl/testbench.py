@@ -142,6 +142,7 @@ def harness_cpp(graph: Graph, p: HardwarePlan) -> str:
     Usage of the built program: ``model IN.bin OUT.bin IDLE_EVERY`` (``IDLE_EVERY > 0``
     leaves ``i__valid`` low for one cycle after every so many accepted samples).
     """
+    # Verilator spells a double underscore in a port name as "___05F" in C++
     name = module_name(graph)
     ib, ob = graph.input.format.bits, graph.output.format.bits
     in_mask = (1 << ib) - 1
@@ -179,8 +180,8 @@ int main(int argc, char** argv) {{
   V{name}* top = new V{name}{{context}};
   top->clk = 0;
   top->rst = 1;
-  top->i__valid = 0;
-  top->i__payload = 0;
+  top->i___05Fvalid = 0;
+  top->i___05Fpayload = 0;
   top->eval();
   for (int k = 0; k < 2; k++) {{
     top->clk = 1; top->eval();
@@ -199,15 +200,15 @@ int main(int argc, char** argv) {{
   while (y.size() < n && cycles < limit) {{
     bool offer = n_in < n;
     if (idle_every > 0 && since_idle >= idle_every) {{ offer = false; since_idle = 0; }}
-    top->i__valid = offer;
-    if (offer) top->i__payload = (uint64_t)x[n_in] & UINT64_C({in_mask});
+    top->i___05Fvalid = offer;
+    if (offer) top->i___05Fpayload = (uint64_t)x[n_in] & UINT64_C({in_mask});
     top->eval();
-    const bool accepted = offer && top->i__ready;
+    const bool accepted = offer && top->i___05Fready;
     top->clk = 1; top->eval();
     top->clk = 0; top->eval();
     if (accepted) {{ n_in++; since_idle++; }}
     cycles++;
-    if (top->o__valid) y.push_back(sign_extend((uint64_t)top->o__payload, {ob}));
+    if (top->o___05Fvalid) y.push_back(sign_extend((uint64_t)top->o___05Fpayload, {ob}));
   }}
   std::printf("cycles %llu\\n", (unsigned long long)cycles);
   std::FILE* g = std::fopen(argv[2], "wb");
