@@ -130,7 +130,7 @@ def run_amaranth(
         Pulse the synchronous reset for one cycle after this many inputs were accepted
         (tests that reset clears all state).
     """
-    from amaranth.hdl import ResetSignal
+    from amaranth.hdl import ClockDomain, Module
     from amaranth.sim import Simulator
 
     xs = [int(v) for v in np.asarray(x).ravel()]
@@ -146,7 +146,7 @@ def run_amaranth(
     async def bench(ctx):
         n = cycle = 0
         did_reset = False
-        while len(outputs) < len(xs) + (0 if reset_at is None else reset_at) and cycle < limit:
+        while len(outputs) < len(xs) and cycle < limit:
             if reset_at is not None and not did_reset and n == reset_at:
                 # let earlier samples drain, then clear everything with one reset cycle
                 for _ in range(p.latency_cycles + p.cycles_per_sample):
@@ -156,9 +156,9 @@ def run_amaranth(
                     if ctx.get(core.o.valid):
                         outputs.append(ctx.get(core.o.payload))
                         produced.append(cycle)
-                ctx.set(ResetSignal(), 1)
+                ctx.set(domain.rst, 1)
                 await ctx.tick()
-                ctx.set(ResetSignal(), 0)
+                ctx.set(domain.rst, 0)
                 cycle += 1
                 did_reset = True
                 continue
@@ -177,7 +177,10 @@ def run_amaranth(
                 produced.append(cycle)
         state["cycles"] = cycle
 
-    sim = Simulator(core)
+    top = Module()
+    top.domains.sync = domain = ClockDomain("sync")
+    top.submodules.core = core
+    sim = Simulator(top)
     sim.add_clock(1e-8)
     sim.add_testbench(bench)
     if vcd is not None:

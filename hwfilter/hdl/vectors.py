@@ -26,7 +26,7 @@ import numpy as np
 from ..graph import Graph
 from ..reference import simulate_float
 
-__all__ = ["Vectors", "vector_set", "hex_lines", "SEGMENTS"]
+__all__ = ["Vectors", "vector_set", "hex_lines", "SEGMENTS", "MAX_SEGMENT"]
 
 SEGMENTS = (
     "impulse",
@@ -50,11 +50,16 @@ class Vectors:
         return [{"name": n, "start": s, "length": k} for n, s, k in self.segments]
 
 
+#: longest fixed segment (long runs are mostly random words)
+MAX_SEGMENT = 1024
+
+
 def vector_set(graph: Graph, samples: int = 2048, *, seed: int = 1) -> Vectors:
     """The vector set for ``graph`` (see the module docstring), ``samples`` words long.
 
-    Each fixed segment takes ``samples // 8`` words (at least one); ``random`` takes the
-    rest. Words are of the graph's input format.
+    Each fixed segment takes ``samples // 8`` words (at least one, at most
+    :data:`MAX_SEGMENT`); ``random`` takes the rest. Words are of the graph's input
+    format.
     """
     if not isinstance(samples, int) or isinstance(samples, bool) or samples < 1:
         raise ValueError(f"samples must be a positive integer, not {samples!r}")
@@ -62,7 +67,7 @@ def vector_set(graph: Graph, samples: int = 2048, *, seed: int = 1) -> Vectors:
     if fmt.bits > 63:
         raise ValueError(f"input word must be at most 63 bits for test vectors, not {fmt.bits}")
     lo, hi = fmt.min_int, fmt.max_int
-    seg = max(1, samples // 8)
+    seg = max(1, min(samples // 8, MAX_SEGMENT))
     parts: list[tuple[str, np.ndarray]] = []
     impulse = np.zeros(seg, np.int64)
     impulse[0] = hi
