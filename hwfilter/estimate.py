@@ -1,0 +1,857 @@
+"""Resource and timing estimates of a quantized graph on a device profile.
+
+The estimate is a pass over the quantized signal-flow graph and a
+:class:`~hwfilter.boards.DeviceProfile`. It models what the hardware pass
+(:mod:`hwfilter.hdl`) emits and what a synthesis tool makes of it:
+
+- **products**: a gain of zero is a constant, a power of two a shift (a negation when
+  negative), any other value a multiplier. A multiplier goes to hard blocks the way the
+  synthesis tool tiles it (the profile's mapping passes: wide products take several
+  blocks, their partial products summed in logic; too-narrow products stay in logic), or,
+  with ``multipliers="logic"``, to partial-product rows in logic (one row per one-bit of
+  the constant in two's complement, as a tool without hard multipliers builds it), or,
+  with ``multipliers="shift-add"``, to canonical-signed-digit shift-add terms (one row
+  per nonzero digit; nonzero digits minus one adders, :mod:`hwfilter.csd`).
+- **sums**: a tree of additions whose inner results have no other reader is one
+  multi-operand sum (a compressor tree of full adders and one carry-chain adder), with
+  the rounding constant of a following quantizer as one more operand; its cost is counted
+  per bit column.
+- **quantizers**: the rounding addition (merged into the sum before it, or its own carry
+  adder) and, when the word can overflow and the rule is saturate, two comparisons on
+  the bits that decide overflow and a multiplexer per output bit.
+- **registers**: states, pipeline, output and control flip-flops from the hardware plan
+  (:func:`hwfilter.hdl.plan`), less registers the profile's blocks absorb.
+- **timing**: node times from the profile's delay model on the data-flow graph; the
+  longest register-to-register path gives the clock period and Fmax, Parhi's iteration
+  bound the fastest sample rate any retiming could reach.
+
+``docs/estimates.md`` documents the model and its calibration against Yosys and nextpnr.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from .boards import DeviceProfile, MappingPass
+from .csd import csd_digits, nonzero_digits
+from .fixed import bits_for_range, is_power_of_two, round_shift
+from .formats import node_ranges
+from .graph import Graph
+from .timing import critical_path, dataflow_graph, iteration_bound
+
+__all__ = [
+    "MULTIPLIER_MODES",
+    "ProductMap",
+    "MultiplierUse",
+    "Estimate",
+    "map_product",
+    "estimate",
+]
+
+#: how constant multipliers are built: hard blocks where the tool maps them, logic rows
+#: (binary partial products), or canonical-signed-digit shift-add
+MULTIPLIER_MODES = ("auto", "logic", "shift-add")
+
+
+# -- products ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ProductMap:
+    """How one product ``a x b`` maps onto hard blocks.
+
+    ``blocks`` weighs the mapped cells (an 18x18 is one block, a 9x9 half of one);
+    ``logic_parts`` lists ``(a, b)`` widths of products or chunks left to logic;
+    ``partial_adders`` the widths of the adders that sum the tiles; ``adder_levels`` how
+    many of them lie in series.
+    """
+
+    blocks: float
+    cells: int
+    logic_parts: tuple = ()
+    partial_adders: tuple = ()
+    adder_levels: int = 0
+
+
+def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
+    """Map a signed ``a_bits x b_bits`` product (``y_bits`` used) through mapping passes.
+
+    Follows the rules of :class:`~hwfilter.boards.MappingPass`: a product left by one pass
+    (too narrow) is offered to the next; what is left after the last pass is logic.
+    """
+    pending = [(a_bits, b_bits, y_bits, True, True)]
+    blocks, cells, adders, levels = 0.0, 0, [], 0
+    for p in passes:
+        out = _PassResult()
+        for cell in pending:
+            depth = _map_cell(*cell, top=True, p=p, out=out)
+            levels = max(levels, depth)
+        blocks += out.cells * p.blocks
+        cells += out.cells
+        adders += out.adders
+        # a product the pass leaves becomes a plain product again; a mixed-signedness
+        # one takes a bit for the unsigned operand (as Yosys's soft multiplier does)
+        pending = []
+        for a, b, y, sa, sb in out.left:
+            if sa != sb:
+                a, b = (a + 1, b) if not sa else (a, b + 1)
+            pending.append((a, b, y, True, True))
+    logic = tuple((a, b) for a, b, _, _, _ in pending)
+    return ProductMap(blocks, cells, logic, tuple(adders), levels)
+
+
+class _PassResult:
+    def __init__(self):
+        self.cells = 0
+        self.adders: list[int] = []
+        self.left: list[tuple] = []
+
+
+def _map_cell(a, b, y, sa, sb, *, top: bool, p: MappingPass, out: _PassResult) -> int:
+    """One cell through one pass (Yosys mul2dsp rules); returns the adder depth."""
+    if top and a < b:
+        a, b, sa, sb = b, a, sb, sa
+    if a < p.min_a_bits or b < p.min_b_bits or y < p.min_product_bits:
+        out.left.append((a, b, y, sa, sb))
+        return 0
+    head = 1 if p.signed_only else 0
+    if top and p.signed_only and not sa and not sb:
+        a, b, sa, sb = a + 1, b + 1, True, True
+    for wide, other, cap, part, wide_is_a in (
+        (a, b, p.a_bits, p.partial_a_bits, True),
+        (b, a, p.b_bits, p.partial_b_bits, False),
+    ):
+        if wide <= cap:
+            continue
+        step = part - head
+        n = (wide - cap + step - 1) // step
+        last = wide - n * step
+        part_y = min(y, other + part)
+        depth = 0
+        for _ in range(n):
+            if wide_is_a:
+                d = _map_cell(part, b, part_y, bool(head), sb, top=False, p=p, out=out)
+            else:
+                d = _map_cell(a, part, part_y, sa, bool(head), top=False, p=p, out=out)
+            depth = max(depth, d)
+        if wide_is_a:
+            d = _map_cell(last, b, b + last, sa, sb, top=False, p=p, out=out)
+        else:
+            d = _map_cell(a, last, a + last, sa, sb, top=False, p=p, out=out)
+        depth = max(depth, d)
+        out.adders.extend(max(y - (i + 1) * step, 1) for i in range(n))
+        return depth + n
+    out.cells += 1
+    return 0
+
+
+def _odd_width(value: int) -> tuple[int, int]:
+    """``(bits, shift)``: width of the odd part of a constant and its trailing zeros."""
+    v = abs(value)
+    tz = (v & -v).bit_length() - 1
+    odd = value >> tz
+    return bits_for_range(odd, odd), tz
+
+
+def _twos_complement_ones(value: int) -> list[int]:
+    """Positions of the one-bits of ``value``'s odd part in minimal two's complement."""
+    bits, tz = _odd_width(value)
+    odd = value >> tz
+    word = odd & ((1 << bits) - 1)
+    return [tz + j for j in range(bits) if word >> j & 1]
+
+
+@dataclass(frozen=True)
+class MultiplierUse:
+    """One constant multiplier: what it multiplies and how it is built.
+
+    ``coefficient_bits`` is the constant's width as a synthesis tool sees it (trailing
+    zeros are a shift); ``implementation`` is ``hard`` (blocks), ``logic`` (partial
+    product rows) or ``shift-add`` (CSD terms); ``rows`` counts the partial products in
+    logic; ``csd_digits`` the nonzero canonical signed digits (shift-add adders are one
+    fewer).
+    """
+
+    node: str
+    value: int
+    input_bits: int
+    coefficient_bits: int
+    product_bits: int
+    implementation: str
+    blocks: float
+    rows: int
+    csd_digits: int
+
+    @property
+    def shift_add_adders(self) -> int:
+        return max(self.csd_digits - 1, 0)
+
+    def as_dict(self) -> dict:
+        return {
+            "node": self.node,
+            "value": self.value,
+            "input_bits": self.input_bits,
+            "coefficient_bits": self.coefficient_bits,
+            "product_bits": self.product_bits,
+            "implementation": self.implementation,
+            "blocks": self.blocks,
+            "rows": self.rows,
+            "csd_digits": self.csd_digits,
+            "shift_add_adders": self.shift_add_adders,
+        }
+
+
+# -- the estimate -----------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """Resources and timing of one realization on one device.
+
+    Counts: ``multipliers`` (gains needing a multiplier), ``shifts`` (power-of-two
+    gains), ``adders`` (two-input additions of the graph, the textbook count),
+    ``delays`` (state words). Resources: ``dsp_blocks``, ``luts`` (LUT equivalents: a
+    carry-chain bit counts one), ``registers`` (flip-flop bits; ``register_detail`` by
+    purpose). Timing: the ``critical_path`` node sequence and its delay, ``fmax_mhz``,
+    ``latency_cycles``, ``cycles_per_sample``, the iteration bound with its loop, and
+    sample rates: at ``clock_mhz`` (None when the clock is above Fmax), at Fmax, and the
+    iteration bound's limit.
+    """
+
+    graph: str
+    form: str
+    section: str
+    device: str
+    pipelining: str
+    multiplier_mode: str
+    multipliers: int
+    shifts: int
+    adders: int
+    delays: int
+    dsp_blocks: float
+    luts: int
+    lut_detail: dict
+    registers: int
+    register_detail: dict
+    critical_path: tuple
+    critical_path_ns: float
+    fmax_mhz: float
+    latency_cycles: int
+    cycles_per_sample: int
+    iteration_bound_ns: float
+    critical_loop: tuple
+    clock_mhz: float | None
+    sample_rate_hz: float | None
+    max_sample_rate_hz: float
+    bound_sample_rate_hz: float
+    fits: bool
+    fit_problems: tuple
+    products: tuple = field(default=(), repr=False)
+    notes: tuple = ()
+
+    def as_dict(self) -> dict:
+        return {
+            "graph": self.graph,
+            "form": self.form,
+            "section": self.section or None,
+            "device": self.device,
+            "pipelining": self.pipelining,
+            "multiplier_mode": self.multiplier_mode,
+            "multipliers": self.multipliers,
+            "shifts": self.shifts,
+            "adders": self.adders,
+            "delays": self.delays,
+            "dsp_blocks": self.dsp_blocks,
+            "luts": self.luts,
+            "lut_detail": dict(self.lut_detail),
+            "registers": self.registers,
+            "register_detail": dict(self.register_detail),
+            "critical_path": list(self.critical_path),
+            "critical_path_ns": round(self.critical_path_ns, 3),
+            "fmax_mhz": round(self.fmax_mhz, 2),
+            "latency_cycles": self.latency_cycles,
+            "cycles_per_sample": self.cycles_per_sample,
+            "iteration_bound_ns": round(self.iteration_bound_ns, 3),
+            "critical_loop": list(self.critical_loop),
+            "clock_mhz": self.clock_mhz,
+            "sample_rate_hz": self.sample_rate_hz,
+            "max_sample_rate_hz": self.max_sample_rate_hz,
+            "bound_sample_rate_hz": (
+                None if self.bound_sample_rate_hz == float("inf") else self.bound_sample_rate_hz
+            ),
+            "fits": self.fits,
+            "fit_problems": list(self.fit_problems),
+            "products": [p.as_dict() for p in self.products],
+            "notes": list(self.notes),
+        }
+
+
+@dataclass
+class _Leaf:
+    """One operand of a sum, in the sum's bit columns ``[lsb, msb)`` (sign-extended up).
+
+    ``rows`` lists the offsets of a logic product's partial-product rows; ``dsp`` names
+    a product from one hard block (a block may add it to one more word).
+    """
+
+    lsb: int
+    msb: int
+    rows: tuple = (0,)
+    dsp: str = ""
+    negated: bool = False
+
+
+@dataclass
+class _Bin:
+    """One two-input addition of the balanced tree the hardware pass writes."""
+
+    a: object
+    b: object
+    lsb: int
+    msb: int
+
+
+def _pair_tree(terms: list):
+    """The balanced tree of two-input additions over ``terms``, paired in order."""
+    while len(terms) > 1:
+        nxt = [
+            _Bin(a, b, min(a.lsb, b.lsb), max(a.msb, b.msb) + 1)
+            for a, b in zip(terms[0::2], terms[1::2])
+        ]
+        if len(terms) % 2:
+            nxt.append(terms[-1])
+        terms = nxt
+    return terms[0]
+
+
+def _unused_compressor(lsbs: list[int], width: int) -> tuple[int, int, int]:
+    """Full adders of a multi-operand sum as Yosys ``maccmap`` builds them.
+
+    Operands are sign-extended to ``width`` bits; operand ``k`` of the tree holds the bits
+    of every column with more than ``k`` bits, so the operands start at the sorted
+    ``lsbs``. Three operands at a time go through a row of full adders spanning from the
+    lowest of their first bits to the top; the sum and the shifted carry go on. Returns
+    ``(full-adder bits, levels, final adder bits)``.
+    """
+    ops = sorted(lsbs)
+    fa, levels = 0, 0
+    while len(ops) > 2:
+        nxt = []
+        i = 0
+        while i < len(ops):
+            if i + 2 < len(ops):
+                start = min(ops[i : i + 3])
+                fa += max(width - start, 0)
+                nxt += [start, start + 1]
+                i += 3
+            else:
+                nxt.append(ops[i])
+                i += 1
+        ops = nxt
+        levels += 1
+    final = width - max(ops) if len(ops) == 2 else 0
+    return fa, levels, max(final, 0)
+
+
+def _dadda_levels(height: int) -> int:
+    """Full-adder levels that reduce a column of ``height`` bits to two (Dadda)."""
+    d, levels = 2, 0
+    while d < height:
+        d = d * 3 // 2
+        levels += 1
+    return levels
+
+
+def estimate(
+    graph: Graph,
+    profile: DeviceProfile,
+    *,
+    pipelining: str = "none",
+    clock_mhz: float | None = None,
+    multipliers: str = "auto",
+) -> Estimate:
+    """Estimate resources and timing of a quantized graph on a device.
+
+    Parameters
+    ----------
+    graph : Graph
+        A quantized graph (every node formatted, every gain an integer value).
+    profile : DeviceProfile
+        The target device (:func:`hwfilter.boards.load_profile`).
+    pipelining : str
+        The hardware option (:data:`hwfilter.hdl.PIPELININGS`).
+    clock_mhz : float, optional
+        The clock to report the sample rate at; the profile's default clock when not
+        given.
+    multipliers : str
+        One of :data:`MULTIPLIER_MODES`.
+
+    Returns
+    -------
+    Estimate
+
+    Raises
+    ------
+    ValueError
+        For an unknown option or a graph that is not quantized.
+    """
+    from .hdl import plan as hardware_plan
+    from .hdl.plan import balance_length, read_stage
+
+    if multipliers not in MULTIPLIER_MODES:
+        raise ValueError(
+            f"multipliers must be one of {', '.join(MULTIPLIER_MODES)}, not {multipliers!r}"
+        )
+    if clock_mhz is not None and not clock_mhz > 0:
+        raise ValueError(f"clock must be a positive frequency in MHz, not {clock_mhz!r}")
+    hp = hardware_plan(graph, pipelining=pipelining)  # checks the graph is quantized
+    model = _Model(graph, profile, multipliers)
+    model.run()
+
+    # -- registers ----------------------------------------------------------------------
+    rb = dict(hp.register_bits)
+    absorbed = 0
+    if profile.multiplier.absorbs_output_register:
+        for name in hp.registered:
+            if model.single_block(name):
+                absorbed += graph[name].format.bits
+        for d in graph.delays:
+            if model.rep[d.name] != d.name:
+                continue
+            src = d.inputs[0]
+            if len(graph.users(src)) == 1 and (model.single_block(src) or model.absorbed_sum(src)):
+                absorbed += d.format.bits
+    merged = sum(d.format.bits for d in graph.delays if model.rep[d.name] != d.name)
+    if merged:
+        rb["merged"] = -merged
+    rb["absorbed"] = -absorbed
+    registers = sum(rb.values())
+
+    # -- timing ---------------------------------------------------------------------------
+    times = model.times
+    extra: dict[tuple[str, str], int] = {}
+    for n in graph.nodes:
+        if n.kind == "input":
+            continue
+        at = (
+            hp.stages[n.name]
+            if n.kind in ("delay", "output")
+            else read_stage(graph, n.name, hp.stages, hp.registered)
+        )
+        for src in n.inputs:
+            k = balance_length(graph, src, at, hp.stages, hp.cycles_per_sample)
+            if graph[src].kind != "delay" and k:
+                extra[(src, n.name)] = extra.get((src, n.name), 0) + k
+    for name in hp.registered:
+        for user in graph.users(name):
+            extra[(name, user.name)] = extra.get((name, user.name), 0) + 1
+    clock_dfg = dataflow_graph(graph, times, extra_registers=extra)
+    d = profile.delay
+    cp = critical_path(clock_dfg, launch=d.clock_to_out, capture=d.routing + d.setup)
+    sample_dfg = dataflow_graph(graph, times)
+    ib = iteration_bound(sample_dfg)
+    fmax = cp.fmax_mhz
+    cps = hp.cycles_per_sample
+    clock = clock_mhz if clock_mhz is not None else profile.default_clock_mhz
+    at_clock = None
+    if clock is not None and clock <= fmax:
+        at_clock = clock * 1e6 / cps
+
+    # -- fit ------------------------------------------------------------------------------
+    problems = []
+    if model.dsp_blocks > profile.multipliers:
+        problems.append(
+            f"needs {model.dsp_blocks:g} multiplier blocks, the device has {profile.multipliers}"
+        )
+    luts = round(model.luts)
+    if luts > profile.luts:
+        problems.append(f"needs about {luts} LUTs, the device has {profile.luts}")
+    if registers > profile.flip_flops:
+        problems.append(f"needs {registers} flip-flops, the device has {profile.flip_flops}")
+    notes = list(model.notes)
+    if clock is not None and at_clock is None:
+        notes.append(f"the clock {clock:g} MHz is above the estimated Fmax {fmax:.1f} MHz")
+
+    mults = [n for n in graph.of_kind("gain") if _is_multiplier(n)]
+    shifts = [
+        n for n in graph.of_kind("gain") if n.value not in (None, 0) and is_power_of_two(n.value)
+    ]
+    return Estimate(
+        graph=graph.name,
+        form=graph.form,
+        section=graph.section_form,
+        device=profile.name,
+        pipelining=pipelining,
+        multiplier_mode=multipliers,
+        multipliers=len(mults),
+        shifts=len(shifts),
+        adders=graph.counts()["adders"],
+        delays=len(graph.delays),
+        dsp_blocks=model.dsp_blocks,
+        luts=luts,
+        lut_detail={k: round(v) for k, v in model.lut_detail.items()},
+        registers=registers,
+        register_detail=rb,
+        critical_path=cp.nodes,
+        critical_path_ns=cp.delay_ns,
+        fmax_mhz=fmax,
+        latency_cycles=hp.latency_cycles,
+        cycles_per_sample=cps,
+        iteration_bound_ns=ib.bound_ns,
+        critical_loop=ib.loop,
+        clock_mhz=clock,
+        sample_rate_hz=at_clock,
+        max_sample_rate_hz=fmax * 1e6 / cps,
+        bound_sample_rate_hz=ib.max_sample_rate_hz,
+        fits=not problems,
+        fit_problems=tuple(problems),
+        products=tuple(model.products),
+        notes=tuple(notes),
+    )
+
+
+def _is_multiplier(node) -> bool:
+    return node.kind == "gain" and node.value not in (None, 0) and not is_power_of_two(node.value)
+
+
+def _representatives(graph: Graph) -> dict[str, str]:
+    """The node each node is merged into by a synthesis tool's identical-cell merging.
+
+    Two gains of one value on one signal, two sums of the same words, two quantizers of
+    one word with one rule, or two delays of one word, compute the same bits: the tool
+    keeps one. Delays are merged by a fixpoint (chains of equal delays merge pairwise).
+    """
+    order = graph.topological_order()
+    rep = {n.name: n.name for n in graph.nodes}
+    while True:
+        seen: dict[tuple, str] = {}
+        new = {}
+        for n in order:
+            ins = tuple(rep[s] for s in n.inputs)
+            if n.kind in ("input", "output"):
+                key = (n.kind, n.name)
+            elif n.kind == "gain":
+                key = ("gain", ins, n.value, n.coefficient_format, n.format)
+            elif n.kind == "add":
+                key = ("add", ins, n.signs, n.format)
+            elif n.kind == "quantize":
+                key = ("quantize", ins, n.format, n.rounding, n.overflow)
+            else:
+                key = ("delay", ins, n.format)
+            new[n.name] = seen.setdefault(key, n.name)
+        if new == rep:
+            return rep
+        rep = new
+
+
+class _Model:
+    """The per-node resource and delay model (see the module docstring)."""
+
+    def __init__(self, graph: Graph, profile: DeviceProfile, mode: str):
+        self.g = graph
+        self.p = profile
+        self.mode = mode
+        self.d = profile.delay
+        self.fa_luts = 1 if profile.lut_inputs >= 6 else 2
+        self.times: dict[str, float] = {}
+        self.luts = 0.0
+        self.lut_detail = {"sums": 0.0, "quantizers": 0.0, "multipliers": 0.0}
+        self.dsp_blocks = 0.0
+        self.products: list[MultiplierUse] = []
+        self.notes: list[str] = []
+        self._maps: dict[str, ProductMap] = {}
+        self._roots: list = []
+        self._merged_adds: dict[str, str] = {}
+        self._absorbed_here = False
+        self._absorbed_sums: set[str] = set()
+        self._merged_rounding: set[str] = set()
+        self.ranges = node_ranges(graph)
+        self.rep = _representatives(graph)
+
+    # -- helpers ------------------------------------------------------------------------
+    def fa_cost(self, levels: int) -> float:
+        """LUTs per full adder of a compressor tree ``levels`` deep.
+
+        A full adder is two LUT4 (sum and carry) or one dual-output LUT6; the mapper
+        duplicates some logic in deeper trees: 0.1 LUT per full adder and level more
+        (calibrated on Yosys 0.70 synth_ecp5 netlists of 3- to 16-term sums).
+        """
+        return self.fa_luts + 0.1 * levels
+
+    def carry(self, bits: int) -> float:
+        return self.d.carry_entry + self.d.carry_per_bit * max(bits, 1)
+
+    def single_block(self, name: str) -> bool:
+        m = self._maps.get(self.rep.get(name, name))
+        return m is not None and m.cells == 1 and not m.logic_parts and not m.partial_adders
+
+    def absorbed_sum(self, name: str) -> bool:
+        return name in self._absorbed_sums
+
+    def _only_reader(self, name: str):
+        users = self.g.users(name)
+        return users[0] if len(users) == 1 else None
+
+    def _add_luts(self, kind: str, n: float):
+        self.luts += n
+        self.lut_detail[kind] += n
+
+    # -- the pass -----------------------------------------------------------------------
+    def run(self):
+        g = self.g
+        for n in g.nodes:
+            self.times[n.name] = 0.0
+        for n in g.of_kind("gain"):
+            self._gain(n)
+        self._group_sums()
+        self._sum_costs()
+        for n in g.of_kind("quantize"):
+            self._quantize(n)
+        for name, r in self.rep.items():  # merged copies take their original's time
+            self.times[name] = self.times[r]
+
+    def _gain(self, n):
+        if self.rep[n.name] != n.name:
+            return  # merged with an identical product
+        v = n.value
+        src = self.g[n.inputs[0]]
+        if v == 0 or (is_power_of_two(v) and v > 0):
+            return  # a constant or a shift: wires
+        if is_power_of_two(v):
+            r = self._only_reader(n.name)
+            if r is None or r.kind != "add":  # a negation of its own (else: in the sum)
+                self._add_luts("sums", n.format.bits)
+                self.times[n.name] = self.d.routing + self.carry(n.format.bits)
+            return
+        a = src.format.bits
+        b, _ = _odd_width(v)
+        rows = len(_twos_complement_ones(v)) if self.mode == "logic" else nonzero_digits(v)
+        if self.mode == "auto":
+            m = map_product(a, b, n.format.bits, self.p.mapping)
+            self._maps[n.name] = m
+            impl = "hard" if m.cells else "logic"
+            rows = 0 if m.cells else len(_twos_complement_ones(v))
+            self.dsp_blocks += m.blocks
+            if m.cells:
+                t = self.d.routing + self.d.multiplier
+                for w in m.partial_adders[: m.adder_levels]:
+                    t += self.d.routing + self.carry(w)
+                self.times[n.name] = t
+                self._add_luts("multipliers", sum(m.partial_adders))
+                for pa, pb in m.logic_parts:  # chunks too narrow for a block
+                    self._add_luts("multipliers", self.fa_luts * min(pa, pb) * max(pa, pb))
+        else:
+            impl = self.mode
+        self.products.append(
+            MultiplierUse(
+                node=n.name,
+                value=v,
+                input_bits=a,
+                coefficient_bits=b,
+                product_bits=n.format.bits,
+                implementation=impl,
+                blocks=self._maps[n.name].blocks if n.name in self._maps else 0.0,
+                rows=rows,
+                csd_digits=nonzero_digits(v),
+            )
+        )
+
+    def _in_logic(self, name: str) -> bool:
+        """A gain built from rows (a logic or shift-add multiplier, a shift, a negation)."""
+        n = self.g[name]
+        if n.kind != "gain" or n.value == 0:
+            return False
+        if is_power_of_two(n.value):
+            return True
+        r = self.rep[name]
+        return r not in self._maps or not self._maps[r].cells
+
+    def _rows_of_gain(self, n) -> list[int]:
+        """Row offsets of a gain built in logic (one per partial product)."""
+        v = n.value
+        if is_power_of_two(v):
+            return [abs(v).bit_length() - 1]
+        if self.mode == "shift-add":
+            return [i for i, dgt in enumerate(csd_digits(v)) if dgt]
+        return _twos_complement_ones(v)
+
+    def _group_sums(self):
+        """Find the sums: adds whose reader is not an add they merge into."""
+        g = self.g
+        self._merged_adds: dict[str, str] = {}
+        for n in g.of_kind("add"):
+            r = self._only_reader(n.name)
+            if r is not None and r.kind == "add":
+                self._merged_adds[n.name] = r.name
+        roots = [
+            n
+            for n in g.of_kind("add")
+            if n.name not in self._merged_adds and self.rep[n.name] == n.name
+        ]
+        # logic products whose reader is not a sum are sums of their own rows
+        for n in g.of_kind("gain"):
+            if (
+                self._in_logic(n.name)
+                and not is_power_of_two(n.value)
+                and self.rep[n.name] == n.name
+            ):
+                r = self._only_reader(n.name)
+                if r is None or r.kind != "add":
+                    roots.append(n)
+        self._roots = roots
+
+    def _terms(self, name: str, frac: int) -> list:
+        """The operands of add ``name`` in a sum whose columns have ``frac`` fraction bits."""
+        g = self.g
+        n = g[name]
+        out = []
+        for src in n.inputs:
+            sn = g[src]
+            off = frac - sn.format.frac
+            if sn.kind == "add" and self._merged_adds.get(src) == name:
+                out.append(_pair_tree(self._terms(src, frac)))
+            elif sn.kind == "gain" and self._in_logic(src) and self._only_reader(src) is n:
+                rows = self._rows_of_gain(sn)
+                width = g[sn.inputs[0]].format.bits
+                lo = off + min(rows)
+                out.append(
+                    _Leaf(
+                        lo,
+                        off + max(rows) + width,
+                        tuple(r - min(rows) for r in rows),
+                        negated=sn.value < 0 and len(rows) == 1,
+                    )
+                )
+            else:
+                dsp = src if self.single_block(src) and self._only_reader(src) is n else ""
+                out.append(_Leaf(off, off + sn.format.bits, dsp=dsp))
+        return out
+
+    def _sum_costs(self):
+        g = self.g
+        for root in self._roots:
+            if root.kind == "gain":  # a logic product standing alone
+                rows = self._rows_of_gain(root)
+                width = g[root.inputs[0]].format.bits
+                leaf = _Leaf(min(rows), max(rows) + width, tuple(r - min(rows) for r in rows))
+                luts, t = self._cluster([leaf], root.format.bits, absorb=False)
+                self._add_luts("multipliers", luts)
+                self.times[root.name] = t
+                continue
+            tree = _pair_tree(self._terms(root.name, root.format.frac))
+            width = root.format.bits
+            extra = []
+            q = self._only_reader(root.name)
+            if q is not None and q.kind == "quantize":
+                k = g[q.inputs[0]].format.frac - q.format.frac
+                if k > 0 and q.rounding in ("half-up", "toward-zero", "half-away"):
+                    # the rounding word is one more operand: the constant half (counted
+                    # as a whole operand from bit k - 1 up, as the tool builds it) or a
+                    # k-bit word chosen by the sign
+                    width += 1
+                    extra.append(_Leaf(k - 1 if q.rounding == "half-up" else 0, k))
+                    self._merged_rounding.add(q.name)
+                if q.overflow == "wrap" or not self._saturates(q):
+                    # bits above the kept word are never read: the tool drops them
+                    width = min(width, max(k, 0) + q.format.bits)
+            luts, t = self._tree_cost(tree, width, extra, root.name)
+            self._add_luts("sums", luts)
+            self.times[root.name] = t
+
+    def _tree_cost(self, tree, width: int, extra: list, root: str) -> tuple[float, float]:
+        """LUTs and delay of one sum: all its operands in one compressor tree.
+
+        The tool keeps some two-input additions of the tree apart (when part of a result
+        has a second reader); the calibration found the single-tree count closer on
+        average (docs/estimates.md), so every operand is counted in one tree here.
+        """
+        leaves: list = list(extra)
+
+        def flat(node):
+            if isinstance(node, _Leaf):
+                leaves.append(node)
+            else:
+                flat(node.a)
+                flat(node.b)
+
+        flat(tree)
+        luts, t = self._cluster(leaves, width, absorb=bool(root))
+        if root and self._absorbed_here:
+            self._absorbed_sums.add(root)
+        return luts, t
+
+    def _cluster(self, leaves: list, width: int, *, absorb: bool) -> tuple[float, float]:
+        """LUTs and delay of one multi-operand sum (a compressor tree and a carry adder).
+
+        Counted per bit column: every operand is sign-extended to the top, so a column
+        holds one bit of every operand that starts at or below it; a full adder takes
+        three bits of a column and leaves two (a sum and a carry one column up), so a
+        column of ``h`` bits needs ``h - 2`` of them. The carry-chain adder covers the
+        columns from the lowest with two bits up.
+        """
+        self._absorbed_here = False
+        lsbs = [leaf.lsb + r for leaf in leaves for r in leaf.rows]
+        if (
+            absorb
+            and self.p.multiplier.absorbs_post_adder
+            and len(lsbs) >= 2
+            and any(leaf.dsp for leaf in leaves)
+        ):
+            # one product and one other word are added inside the block
+            dsp = next(leaf for leaf in leaves if leaf.dsp)
+            lsbs.remove(dsp.lsb)
+            self._absorbed_here = True
+        d = self.d
+        if len(lsbs) <= 1:
+            if leaves and any(leaf.negated for leaf in leaves):
+                bits = width - min(lsbs, default=0)
+                return float(bits), d.routing + self.carry(bits)
+            return 0.0, 0.0
+        heights = [0] * width
+        for lo in lsbs:
+            for c in range(max(lo, 0), width):
+                heights[c] += 1
+        fa = sum(max(0, h - 2) for h in heights)
+        first = next((c for c, h in enumerate(heights) if h >= 2), width)
+        final = width - first
+        levels = _dadda_levels(max(heights, default=0))
+        luts = self.fa_cost(levels) * fa + final
+        t = d.routing + levels * (d.lut + d.routing) + self.carry(final)
+        return luts, t
+
+    def _saturates(self, q) -> bool:
+        """Whether quantizer ``q`` needs saturation logic (the hardware pass's rule)."""
+        src = self.g[q.inputs[0]]
+        k = src.format.frac - q.format.frac
+        lo, hi, _ = self.ranges[src.name]
+        if lo < src.format.min_int or hi > src.format.max_int:
+            lo, hi = src.format.min_int, src.format.max_int
+        rlo, rhi = round_shift(lo, k, q.rounding), round_shift(hi, k, q.rounding)
+        fmt = q.format
+        in_range = fmt.min_int <= rlo and rhi <= fmt.max_int
+        return not in_range and q.overflow == "saturate"
+
+    def _quantize(self, q):
+        if self.rep[q.name] != q.name:
+            return
+        src = self.g[q.inputs[0]]
+        k = src.format.frac - q.format.frac
+        sat = self._saturates(q)
+        t = 0.0
+        rounds = k > 0 and q.rounding != "floor"
+        rbits = src.format.bits + (1 if rounds else 0) - k
+        if rounds and q.name not in self._merged_rounding:
+            # its own adder: for half-up only the kept bits and one more carry matter;
+            # the other rules add a word reaching down to bit 0
+            if q.rounding == "half-up":
+                width = rbits if sat else q.format.bits + 2
+            else:
+                width = src.format.bits if sat else q.format.bits + k
+            self._add_luts("quantizers", width)
+            t += self.d.routing + self.carry(width)
+        if sat:
+            # two comparisons over the rounded word and a two-level choice per output bit
+            # (calibrated on Yosys 0.70 synth_ecp5 netlists, see docs/estimates.md)
+            self._add_luts("quantizers", rbits + 2 * q.format.bits)
+            t += self.d.routing + self.carry(rbits) + self.d.routing + self.d.lut
+        self.times[q.name] = t

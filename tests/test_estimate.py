@@ -1,0 +1,261 @@
+"""The estimator: textbook counts, product mapping rules, registers, timing, options."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy import signal
+
+from hwfilter.boards import MappingPass, load_profile
+from hwfilter.estimate import MULTIPLIER_MODES, estimate, map_product
+from hwfilter.fixed import Format
+from hwfilter.formats import default_quantizer_formats, quantize_coefficients, set_quantizers
+from hwfilter.hdl import plan
+from hwfilter.realize import realize
+
+ECP5 = load_profile("ecp5-25k")
+FI = Format(16, 15)
+
+# a biquad whose five coefficients are all "busy" (no zero, no power of two after rounding)
+B = [0.3012, -0.2718, 0.2091]
+A = [1.0, -1.1093, 0.4517]
+
+
+def quantized(form, b=B, a=A, section="direct-form-2", sos=None, bits=18, state=24):
+    g = realize("t", b=b, a=a, form=form, section=section, sos=sos)
+    g = quantize_coefficients(g, bits)
+    f = default_quantizer_formats(g, input_format=FI, output_format=FI, state_bits=state)
+    return set_quantizers(g, f, input_format=FI, rounding="half-up", overflow="saturate")
+
+
+# Counts per biquad (Parhi, VLSI DSP Systems, ch. 2-3; Oppenheim & Schafer, Discrete-Time
+# Signal Processing, 3rd ed., ch. 6 [M]): direct form I has 5 multipliers, 4 adders and 4
+# delays; direct form II and its transpose 5, 4 and 2.
+@pytest.mark.parametrize(
+    "form, mults, adders, delays",
+    [
+        ("direct-form-1", 5, 4, 4),
+        ("direct-form-2", 5, 4, 2),
+        ("transposed-direct-form-2", 5, 4, 2),
+    ],
+)
+def test_biquad_counts_against_the_textbook(form, mults, adders, delays):
+    e = estimate(quantized(form), ECP5)
+    assert (e.multipliers, e.adders, e.delays) == (mults, adders, delays)
+    assert e.shifts == 0
+
+
+@pytest.mark.parametrize("n", [7, 8, 15, 16, 31])
+def test_symmetric_fir_needs_half_the_multipliers(n):
+    # a symmetric N-tap FIR folds to ceil(N/2) multipliers (Parhi; common practice)
+    half = [0.013 + 0.37 * k / n + 0.001 * k * k for k in range((n + 1) // 2)]
+    taps = half + half[: n // 2][::-1]
+    g = quantized("fir-symmetric", b=taps, a=[1.0])
+    e = estimate(g, ECP5)
+    assert e.multipliers == math.ceil(n / 2)
+    direct = estimate(quantized("fir-direct", b=taps, a=[1.0]), ECP5)
+    assert direct.multipliers == n
+
+
+def test_power_of_two_gains_are_free():
+    # b = [0.5, 0.25]: both quantize to powers of two: shifts, no multiplier, no block
+    g = quantized("fir-direct", b=[0.5, 0.25], a=[1.0])
+    e = estimate(g, ECP5)
+    assert e.multipliers == 0 and e.shifts == 2 and e.dsp_blocks == 0
+    assert e.lut_detail["multipliers"] == 0
+
+
+ECP5_PASS = MappingPass(18, 18, 2, 2, 0, 18, 18, False, 1.0, "test")
+
+
+@pytest.mark.parametrize(
+    "a, b, blocks, logic",
+    [
+        # derived by hand from the mul2dsp rules in MappingPass's docstring
+        (16, 16, 1, ()),  # fits one block
+        (18, 18, 1, ()),
+        (20, 16, 2, ()),  # 20 = 18 + 2: two tiles
+        (24, 16, 2, ()),  # 24 = 18 + 6
+        (19, 16, 1, ((1, 16),)),  # 19 = 18 + 1: the one-bit chunk is too narrow
+        (16, 24, 2, ()),  # the wider operand is cut first, whichever it is
+        (36, 36, 4, ()),  # 2 x 2 tiles
+        (37, 16, 2, ((1, 16),)),
+        (1, 16, 0, ((16, 1),)),  # too narrow for any block
+    ],
+)
+def test_product_tiling(a, b, blocks, logic):
+    m = map_product(a, b, a + b, [ECP5_PASS])
+    assert m.blocks == blocks
+    assert m.logic_parts == logic
+
+
+def test_signed_only_block_tiles_with_headroom():
+    # a 25x18 block taking signed operands only: an unsigned low chunk is 17 data bits
+    # plus a zero sign bit, so 43 = 17 + 17 + 9 bits need three tiles, 42 = 17 + 25 two
+    p = MappingPass(25, 18, 2, 2, 9, 18, 18, True, 1.0, "test")
+    assert map_product(43, 18, 61, [p]).blocks == 3
+    assert map_product(42, 18, 60, [p]).blocks == 2
+    assert map_product(2, 5, 7, [p]).blocks == 0  # product narrower than 9 bits
+
+
+def test_later_pass_takes_what_an_earlier_one_leaves():
+    big = MappingPass(18, 18, 10, 4, 0, 18, 18, False, 1.0, "test")
+    small = MappingPass(9, 9, 4, 4, 0, 9, 9, False, 0.5, "test")
+    # 24 x 16: 18 x 16 fits the big block; the 6-bit rest is too narrow for it (a < 10)
+    # and becomes two 9x9 halves (16 = 9 + 7)
+    m = map_product(24, 16, 40, [big, small])
+    assert m.blocks == 1 + 2 * 0.5 and m.cells == 3
+
+
+def test_registers_follow_the_hardware_plan():
+    g = quantized("transposed-direct-form-2")
+    e = estimate(g, ECP5)
+    hp = plan(g)
+    assert e.registers == hp.total_register_bits
+    # two 24-bit states, the 16-bit output register and one valid bit
+    assert e.registers == 2 * 24 + 16 + 1
+
+
+def test_identical_delays_are_counted_once():
+    # a cascade of direct form I sections: section 2 delays section 1's output twice,
+    # exactly as section 1's own feedback delays do; synthesis keeps one copy
+    sos = signal.butter(4, 0.2, output="sos")
+    g = quantized("cascade", section="direct-form-1", sos=sos)
+    e = estimate(g, ECP5)
+    # s1: x1, x2 (16 bits), y1, y2 (24); s2: x1, x2 (= s1.y1, s1.y2), y1, y2 (24)
+    assert e.register_detail["merged"] == -2 * 24
+    assert e.registers == 2 * 16 + 4 * 24 + 16 + 1
+
+
+def test_pipelining_moves_registers_and_shortens_the_path():
+    taps = [0.11, -0.23, 0.37, 0.41, 0.37, -0.23, 0.11]
+    g = quantized("fir-direct", b=taps, a=[1.0])
+    flat = estimate(g, ECP5)
+    piped = estimate(g, ECP5, pipelining="registered-products")
+    assert piped.latency_cycles == flat.latency_cycles + 1
+    assert piped.registers > flat.registers
+    assert piped.critical_path_ns < flat.critical_path_ns
+    # a registered product ends a path: no path runs on through its register
+    hp = plan(g, pipelining="registered-products")
+    assert hp.registered
+    assert not any(n in hp.registered for n in piped.critical_path[:-1])
+
+
+def test_iteration_bound_is_below_the_critical_path():
+    # every loop segment between two delays is a register-to-register path, so the
+    # bound (loop time over delays) cannot exceed the longest path's computation time
+    for form in ("direct-form-1", "direct-form-2", "transposed-direct-form-2"):
+        e = estimate(quantized(form), ECP5)
+        d = ECP5.delay
+        assert 0 < e.iteration_bound_ns <= e.critical_path_ns - d.clock_to_out - d.setup
+        assert e.critical_loop
+
+
+def test_fir_has_no_iteration_bound():
+    e = estimate(quantized("fir-transposed", b=[0.3, 0.4, 0.3], a=[1.0]), ECP5)
+    assert e.iteration_bound_ns == 0 and e.bound_sample_rate_hz == float("inf")
+
+
+def test_sample_rate_at_a_clock():
+    g = quantized("direct-form-2")
+    e = estimate(g, ECP5, clock_mhz=10.0)
+    assert e.fmax_mhz > 10.0
+    assert e.sample_rate_hz == pytest.approx(10e6)
+    e = estimate(g, ECP5, clock_mhz=1000.0)
+    assert e.sample_rate_hz is None
+    assert any("above the estimated Fmax" in n for n in e.notes)
+    assert e.max_sample_rate_hz == pytest.approx(e.fmax_mhz * 1e6)
+
+
+def test_default_clock_comes_from_the_profile():
+    e = estimate(quantized("direct-form-2"), ECP5)
+    assert e.clock_mhz == ECP5.default_clock_mhz
+
+
+@pytest.mark.parametrize("mode", MULTIPLIER_MODES)
+def test_multiplier_modes(mode):
+    g = quantized("direct-form-2")
+    e = estimate(g, ECP5, multipliers=mode)
+    if mode == "auto":
+        assert e.dsp_blocks > 0
+        assert all(p.implementation == "hard" for p in e.products)
+    else:
+        assert e.dsp_blocks == 0
+        assert all(p.implementation == mode for p in e.products)
+        assert e.lut_detail["sums"] > estimate(g, ECP5).lut_detail["sums"]
+
+
+def test_shift_add_rows_are_the_nonzero_csd_digits():
+    g = quantized("direct-form-2")
+    e = estimate(g, ECP5, multipliers="shift-add")
+    from hwfilter.csd import nonzero_digits
+
+    for p in e.products:
+        assert p.rows == p.csd_digits == nonzero_digits(p.value)
+        assert p.shift_add_adders == p.csd_digits - 1
+    logic = estimate(g, ECP5, multipliers="logic")
+    # CSD never needs more terms than binary, and the sums get no bigger
+    assert sum(p.rows for p in e.products) <= sum(p.rows for p in logic.products)
+    assert e.luts <= logic.luts
+
+
+def test_does_not_fit_a_small_device():
+    # 24-bit states times 16-bit coefficients tile two 16x16 blocks each on the UP5K,
+    # which has 8: an eighth-order cascade cannot fit
+    sos = signal.butter(8, 0.1, output="sos")
+    g = quantized("cascade", sos=sos)
+    e = estimate(g, load_profile("ice40-up5k"))
+    assert not e.fits
+    assert any("multiplier blocks, the device has 8" in p for p in e.fit_problems)
+
+
+def test_json_fields():
+    d = estimate(quantized("cascade", sos=signal.butter(4, 0.2, output="sos")), ECP5).as_dict()
+    for key in (
+        "form",
+        "section",
+        "multipliers",
+        "dsp_blocks",
+        "luts",
+        "registers",
+        "critical_path_ns",
+        "fmax_mhz",
+        "latency_cycles",
+        "fits",
+    ):
+        assert key in d
+    assert d["form"] == "cascade" and d["section"] == "direct-form-2"
+    assert isinstance(d["fits"], bool)
+
+
+def test_bad_options():
+    g = quantized("direct-form-2")
+    with pytest.raises(ValueError, match="multipliers must be one of auto, logic, shift-add"):
+        estimate(g, ECP5, multipliers="fast")
+    with pytest.raises(ValueError, match="clock must be a positive frequency in MHz, not -1"):
+        estimate(g, ECP5, clock_mhz=-1)
+    with pytest.raises(ValueError, match="must be quantized"):
+        estimate(realize("t", b=B, a=A, form="direct-form-2"), ECP5)
+
+
+def test_absorbing_blocks_take_product_registers():
+    # the generic part packs a register after a single-block product into the block
+    taps = [0.11, -0.23, 0.37, 0.41]
+    g = quantized("fir-direct", b=taps, a=[1.0])
+    gen = load_profile("generic-lut6-dsp25x18")
+    piped = estimate(g, gen, pipelining="registered-products")
+    hp = plan(g, pipelining="registered-products")
+    product_bits = sum(g[n].format.bits for n in hp.registered)
+    assert piped.register_detail["absorbed"] == -product_bits
+    assert piped.registers == hp.total_register_bits - product_bits
+
+
+def test_critical_path_is_a_chain_of_graph_nodes():
+    g = quantized("cascade", sos=signal.butter(4, 0.2, output="sos"))
+    e = estimate(g, ECP5)
+    for a, b in zip(e.critical_path, e.critical_path[1:]):
+        # consecutive nodes are connected (possibly through nothing but wires)
+        assert a in g[b].inputs
+    assert np.isfinite(e.fmax_mhz) and e.fmax_mhz > 0
