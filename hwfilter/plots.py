@@ -36,7 +36,7 @@ def _db(h):
     return 20 * np.log10(np.maximum(np.abs(h), _DB_FLOOR))
 
 
-def _mask(ax, spec, ripple_ref_db=0.0):
+def _mask(ax, spec, ripple_ref_db=0.0, stopband=True):
     """Shade the spec: passband ripple window and stopband ceiling."""
     if spec is None:
         return
@@ -51,7 +51,7 @@ def _mask(ax, spec, ripple_ref_db=0.0):
                 lw=0,
                 label="passband window",
             )
-    if spec.stopband_attenuation_db is not None:
+    if stopband and spec.stopband_attenuation_db is not None:
         for lo, hi in spec.stopband:
             ax.plot(
                 [lo, hi],
@@ -71,7 +71,7 @@ def magnitude_plot(
     ax.plot(f, d, label="float design", lw=1.4)
     ax.plot(f, q, "--", label="quantized coefficients", lw=1.2)
     ref = float(np.max(d))
-    _mask(ax, spec, ref)
+    _mask(ax, spec, ref, stopband=not zoom)
     if zoom and spec is not None and spec.passband:
         lo = min(b[0] for b in spec.passband)
         hi = max(b[1] for b in spec.passband)
@@ -113,7 +113,7 @@ def pole_zero_plot(poles_design, zeros_design, poles_quantized, zeros_quantized=
     ax.set_ylim(-lim, lim)
     ax.grid(True, alpha=0.3)
     ax.set_title("Poles and zeros")
-    ax.legend(fontsize=7, loc="lower left")
+    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0))
     return _png(fig)
 
 
