@@ -34,7 +34,7 @@ from dataclasses import dataclass, field
 
 from .boards import DeviceProfile, MappingPass
 from .csd import csd_digits, nonzero_digits
-from .fixed import bits_for_range, is_power_of_two, round_shift
+from .fixed import bits_for_range, is_power_of_two
 from .formats import node_ranges
 from .graph import Graph
 from .timing import critical_path, dataflow_graph, iteration_bound
@@ -396,6 +396,7 @@ def estimate(
         For an unknown option or a graph that is not quantized.
     """
     from .hdl import plan as hardware_plan
+    from .hdl.flipflops import flip_flop_count
     from .hdl.plan import balance_length, read_stage
 
     if multipliers not in MULTIPLIER_MODES:
@@ -409,22 +410,23 @@ def estimate(
     model.run()
 
     # -- registers ----------------------------------------------------------------------
+    # the hardware pass's flip-flop model: constant, unused and duplicate bits go
+    ff = flip_flop_count(graph, hp)
     rb = dict(hp.register_bits)
+    for key in ("constant", "unused", "duplicate"):
+        if getattr(ff, key):
+            rb[key] = -getattr(ff, key)
     absorbed = 0
     if profile.multiplier.absorbs_output_register:
         for name in hp.registered:
             if model.single_block(name):
-                absorbed += graph[name].format.bits
+                absorbed += ff.by_register.get(_reg_name(hp, name), {}).get("kept", 0)
         for d in graph.delays:
-            if model.rep[d.name] != d.name:
-                continue
             src = d.inputs[0]
             if len(graph.users(src)) == 1 and (model.single_block(src) or model.absorbed_sum(src)):
-                absorbed += d.format.bits
-    merged = sum(d.format.bits for d in graph.delays if model.rep[d.name] != d.name)
-    if merged:
-        rb["merged"] = -merged
-    rb["absorbed"] = -absorbed
+                absorbed += ff.by_register.get(_reg_name(hp, d.name), {}).get("kept", 0)
+    if absorbed:
+        rb["absorbed"] = -absorbed
     registers = sum(rb.values())
 
     # -- timing ---------------------------------------------------------------------------
@@ -510,6 +512,14 @@ def estimate(
     )
 
 
+def _reg_name(hp, node: str) -> str:
+    """The flip-flop model's name of a node's register (a delay, or a product register)."""
+    for r in hp.pipeline_registers:
+        if r.source == node and r.kind == "product":
+            return r.name
+    return node
+
+
 def _is_multiplier(node) -> bool:
     return node.kind == "gain" and node.value not in (None, 0) and not is_power_of_two(node.value)
 
@@ -567,6 +577,9 @@ class _Model:
         self._merged_rounding: set[str] = set()
         self.ranges = node_ranges(graph)
         self.rep = _representatives(graph)
+        from .hdl.plan import constant_low_bits
+
+        self.zeros = constant_low_bits(graph)
 
     # -- helpers ------------------------------------------------------------------------
     def fa_cost(self, levels: int) -> float:
@@ -623,7 +636,7 @@ class _Model:
                 self._add_luts("sums", n.format.bits)
                 self.times[n.name] = self.d.routing + self.carry(n.format.bits)
             return
-        a = src.format.bits
+        a = max(src.format.bits - self.zeros[src.name], 1)  # known-zero bits are wiring
         b, _ = _odd_width(v)
         rows = len(_twos_complement_ones(v)) if self.mode == "logic" else nonzero_digits(v)
         if self.mode == "auto":
@@ -708,11 +721,14 @@ class _Model:
         for src in n.inputs:
             sn = g[src]
             off = frac - sn.format.frac
+            z = self.zeros[src]  # known-zero low bits enter as wiring, not as adder inputs
             if sn.kind == "add" and self._merged_adds.get(src) == name:
                 out.append(_pair_tree(self._terms(src, frac)))
             elif sn.kind == "gain" and self._in_logic(src) and self._only_reader(src) is n:
                 rows = self._rows_of_gain(sn)
-                width = g[sn.inputs[0]].format.bits
+                zin = self.zeros[sn.inputs[0]]
+                width = g[sn.inputs[0]].format.bits - zin
+                off += zin
                 lo = off + min(rows)
                 out.append(
                     _Leaf(
@@ -724,7 +740,7 @@ class _Model:
                 )
             else:
                 dsp = src if self.single_block(src) and self._only_reader(src) is n else ""
-                out.append(_Leaf(off, off + sn.format.bits, dsp=dsp))
+                out.append(_Leaf(off + min(z, sn.format.bits - 1), off + sn.format.bits, dsp=dsp))
         return out
 
     def _sum_costs(self):
@@ -743,17 +759,14 @@ class _Model:
             extra = []
             q = self._only_reader(root.name)
             if q is not None and q.kind == "quantize":
-                k = g[q.inputs[0]].format.frac - q.format.frac
-                if k > 0 and q.rounding in ("half-up", "toward-zero", "half-away"):
-                    # the rounding word is one more operand: the constant half (counted
-                    # as a whole operand from bit k - 1 up, as the tool builds it) or a
-                    # k-bit word chosen by the sign
-                    width += 1
-                    extra.append(_Leaf(k - 1 if q.rounding == "half-up" else 0, k))
+                k = self._dropped(q)
+                if k > 0 and q.rounding == "half-up":
+                    # ((v >> (k - 1)) + 1) >> 1: the increment is a carry into the sum
                     self._merged_rounding.add(q.name)
                 if q.overflow == "wrap" or not self._saturates(q):
                     # bits above the kept word are never read: the tool drops them
-                    width = min(width, max(k, 0) + q.format.bits)
+                    width = min(width, g[q.inputs[0]].format.frac - q.format.frac
+                                + q.format.bits)
             luts, t = self._tree_cost(tree, width, extra, root.name)
             self._add_luts("sums", luts)
             self.times[root.name] = t
@@ -821,32 +834,37 @@ class _Model:
 
     def _saturates(self, q) -> bool:
         """Whether quantizer ``q`` needs saturation logic (the hardware pass's rule)."""
+        from .hdl.plan import can_overflow
+
+        return q.overflow == "saturate" and can_overflow(self.g, q, self.ranges)
+
+    def _dropped(self, q) -> int:
+        """Fraction bits quantizer ``q`` rounds away (known-zero bits drop exactly)."""
         src = self.g[q.inputs[0]]
         k = src.format.frac - q.format.frac
-        lo, hi, _ = self.ranges[src.name]
-        if lo < src.format.min_int or hi > src.format.max_int:
-            lo, hi = src.format.min_int, src.format.max_int
-        rlo, rhi = round_shift(lo, k, q.rounding), round_shift(hi, k, q.rounding)
-        fmt = q.format
-        in_range = fmt.min_int <= rlo and rhi <= fmt.max_int
-        return not in_range and q.overflow == "saturate"
+        return k - min(self.zeros[src.name], k) if k > 0 else 0
 
     def _quantize(self, q):
+        """Rounding adder (when not a carry into the sum before it) and saturation."""
+        from .hdl.plan import rounded_range
+
         if self.rep[q.name] != q.name:
             return
         src = self.g[q.inputs[0]]
-        k = src.format.frac - q.format.frac
+        k = self._dropped(q)
         sat = self._saturates(q)
         t = 0.0
-        rounds = k > 0 and q.rounding != "floor"
-        rbits = src.format.bits + (1 if rounds else 0) - k
-        if rounds and q.name not in self._merged_rounding:
-            # its own adder: for half-up only the kept bits and one more carry matter;
-            # the other rules add a word reaching down to bit 0
+        rlo, rhi = rounded_range(self.g, q, self.ranges)
+        rbits = bits_for_range(rlo, rhi)
+        if k > 0 and q.rounding != "floor" and q.name not in self._merged_rounding:
             if q.rounding == "half-up":
-                width = rbits if sat else q.format.bits + 2
+                # an incrementer on the bits from k - 1 up
+                width = (rbits if sat else q.format.bits) + 1
             else:
-                width = src.format.bits if sat else q.format.bits + k
+                # a word reaching down to bit 0 is added (the sign or the kept LSB
+                # chooses it)
+                width = (rbits if sat else q.format.bits) + k
+            width = min(width, src.format.bits + 1)
             self._add_luts("quantizers", width)
             t += self.d.routing + self.carry(width)
         if sat:

