@@ -43,7 +43,7 @@ A filter file::
     stopband_attenuation = 55.0      # dB below the passband peak
 
     [hardware]
-    pipelining = "none"              # none, registered-products
+    pipelining = "none"              # none, registered-products, registered-all-products
 
 Every value is checked at load; an error names the file, the field and the problem.
 """
@@ -88,7 +88,7 @@ FIR_METHODS = ("window", "equiripple")
 DESIGN_METHODS = IIR_METHODS + FIR_METHODS
 BANDS = ("lowpass", "highpass", "bandpass", "bandstop")
 SCALINGS = ("l1", "l2", "linf", "none")
-PIPELININGS = ("none", "registered-products")
+PIPELININGS = ("none", "registered-products", "registered-all-products")
 
 _VERILOG_KEYWORDS = frozenset(
     """always and assign automatic begin buf bufif0 bufif1 case casex casez cell cmos config

@@ -153,3 +153,11 @@ def test_defaults_and_python_api():
     assert spec.realization.section == "direct-form-2"
     same = from_dict({"name": "demo", "filter": {"taps": [0.25, 0.5, 0.25]}})
     assert same.is_fir and same.realization.form == "cascade"
+
+
+def test_pipelining_choices_match_the_hardware():
+    # the file's [hardware] pipelining accepts exactly the options the hardware builds
+    from hwfilter.hdl import PIPELININGS as HW
+    from hwfilter.spec import PIPELININGS
+
+    assert PIPELININGS == HW

@@ -61,7 +61,7 @@ section_gains = false           # power-of-two rescaling of cascade sections
 # stopband_attenuation = 40.0   # dB
 
 [hardware]
-pipelining = "none"             # none, registered-products
+pipelining = "none"             # none, registered-products, registered-all-products
 """
 
 
