@@ -28,7 +28,7 @@ import numpy as np
 
 from . import __version__
 from .errors import FilterFileError, QuantizationWarning
-from .pipeline import applicable_realizations, float_graph, quantized_graph
+from .pipeline import float_graph, quantized_graph
 from .spec import FilterSpec, load
 
 __all__ = ["JobResult", "run_job", "DEFAULT_DEVICE", "advice", "STEPS"]
@@ -258,44 +258,21 @@ def _verify(g, pipelining, manifest, build_dir: Path, progress) -> list[dict]:
 
 
 def _estimates(spec, g, device, clock_mhz, pipelining, compare: bool):
+    """The estimate of the built realization and, with ``compare``, of every other one."""
     from .boards import load_profile
+    from .commands.estimate import compare as compare_all
     from .estimate import estimate
-    from .noise import predict_noise, sqnr_db
-    from .stability import stability
 
-    try:
-        profile = load_profile(device)
-    except FilterFileError:
-        raise
+    profile = load_profile(device)
     main = estimate(g, profile, pipelining=pipelining, clock_mhz=clock_mhz).as_dict()
     rows = []
-    cands = applicable_realizations(spec) if compare else [(g.form, g.section_form or None)]
-    for form, section in cands:
-        try:
-            cg = (
-                g
-                if (form, section or "") == (g.form, g.section_form)
-                else _quiet_graph(spec, form=form, section=section)
-            )
-        except FilterFileError:
-            continue
-        e = estimate(cg, profile, pipelining=pipelining, clock_mhz=clock_mhz).as_dict()
-        st = stability(cg)
-        sq = None
-        if st.stable:
-            pred = predict_noise(cg)
-            rms = 0.25 * float(abs(cg.input.format.min_value))
-            sq = sqnr_db(cg, pred, rms)["white_db"]
-        label = form + (f" of {section}" if section else "")
-        rows.append(
-            {
-                **e,
-                "realization": label,
-                "stable": bool(st.stable),
-                "sqnr_db": sq,
-                "chosen": (form, section or "") == (g.form, g.section_form),
-            }
-        )
+    if compare:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", QuantizationWarning)
+            rows = compare_all(spec, profile, clock_mhz=clock_mhz, pipelining=pipelining)
+    for row in rows:
+        row["realization"] = row["form"] + (f" of {row['section']}" if row.get("section") else "")
+        row["chosen"] = (row["form"], row.get("section") or "") == (g.form, g.section_form)
     return profile, main, rows
 
 

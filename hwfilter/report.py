@@ -165,7 +165,7 @@ def render_html(results: dict, images: dict[str, bytes]) -> str:
                     ("critical_path_ns", "critical path (ns)"),
                     ("fmax_mhz", "Fmax (MHz)"),
                     ("latency_cycles", "latency"),
-                    ("sqnr_db", "SQNR (dB)"),
+                    ("sqnr_db", "SQNR, white input rms 1/8 (dB)"),
                     ("stable", "stable"),
                     ("fits", "fits"),
                 ],
