@@ -122,6 +122,18 @@ def test_quantizer_exhaustive(rounding, overflow):
     assert [int(v) for v in r.output] == want
 
 
+@pytest.mark.parametrize("rounding", ["floor", "half-up", "half-even", "toward-zero", "half-away"])
+def test_quantizer_shift_past_the_word(rounding):
+    # dropping more fraction bits (11) than the word has (8): only the sign and the
+    # rounding of values below one LSB are left
+    g = _quantizer_graph(Format(8, 12), Format(4, 1), rounding, "saturate")
+    x = np.arange(-128, 128)
+    r = run_amaranth(g, x, pipelining="none")
+    assert [int(v) for v in r.output] == [
+        min(max(_textbook(int(v), 11, rounding), -8), 7) for v in x
+    ]
+
+
 def test_full_rate_and_busy_ready():
     # at full rate the input is taken every cycles_per_sample clocks, never faster
     g = quantized("cascade", "direct-form-2")

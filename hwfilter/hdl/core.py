@@ -233,7 +233,8 @@ def _round(v, k: int, rounding: str):
         return (v + Mux(negative, half - 1, half)) >> k
     if rounding == "half-even":
         # ties go to the even neighbour: add half - 1, plus one when the kept LSB is set
-        return (v + (half - 1) + v[k]) >> k
+        kept_lsb = v[k] if k < len(v) else v[-1]  # a shift past the word keeps its sign
+        return (v + (half - 1) + kept_lsb) >> k
     raise ValueError(f"hardware does not know rounding rule {rounding!r}")
 
 

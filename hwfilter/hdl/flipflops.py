@@ -95,6 +95,15 @@ def flip_flop_count(graph: Graph, p: HardwarePlan) -> FlipFlopCount:
         The quantized graph the plan was made for.
     p : HardwarePlan
         Its plan (:func:`hwfilter.hdl.plan`).
+
+    Notes
+    -----
+    Constant multipliers are taken as multiplier blocks whose product bits are opaque
+    (ECP5 ``MULT18X18D``, iCE40 ``SB_MAC16``), as synthesis treats them. When a
+    synthesizer builds them from LUTs instead, its logic optimization may also prove
+    some product bits equal (the low bits of ``x * c`` depend only on the low bits of
+    ``c``; bit ``t`` of ``x * c'2**t`` is bit 0 of ``x``) and merge a few more registers
+    holding them: the count here is then an upper bound.
     """
     ranges = node_ranges(graph)
     zeros = constant_low_bits(graph)
@@ -249,18 +258,19 @@ def _gain(net: _Netlist, n, x: list[int], zx: int) -> list[int]:
     if v == 0:
         return [_ZERO] * bits
     xr = x[zx:]
-    if is_power_of_two(v):
-        shift = abs(v).bit_length() - 1 + zx
-        if v > 0:
-            return [_ZERO if j < shift else _ext(xr, j - shift) for j in range(bits)]
-        key = ("neg", tuple(xr))
-        neg = [net.bit((key, i), xr[: i + 1]) for i in range(len(xr) + 1)]
-        return [_ZERO if j < shift else _ext(neg, j - shift) for j in range(bits)]
+    if is_power_of_two(v) and v > 0:
+        shift = v.bit_length() - 1 + zx
+        return [_ZERO if j < shift else _ext(xr, j - shift) for j in range(bits)]
     t = (abs(v) & -abs(v)).bit_length() - 1
-    key = ("mul", v, n.coefficient_format.bits, tuple(xr))
-    width = len(xr) + n.coefficient_format.bits
-    prod = [net.bit((key, i), xr[: i + 1]) for i in range(width)]
-    return [_ZERO if j < zx + t else _ext(prod, j - zx) for j in range(bits)]
+    if v < 0 and is_power_of_two(v):
+        key = ("neg", tuple(xr))
+        prod = [net.bit((key, i), xr[: i + 1]) for i in range(len(xr) + 1)]
+    else:
+        # a multiplier block: its product bits are opaque (the t low zeros aside)
+        key = ("mul", v, n.coefficient_format.bits, tuple(xr))
+        width = len(xr) + n.coefficient_format.bits
+        prod = [net.bit((key, i), xr[: i + 1]) for i in range(width)]
+    return [_ZERO if j < zx + t else _ext(prod, j - zx - t) for j in range(bits)]
 
 
 def _adder(net: _Netlist, key, a: list[int], b: list[int], op: str) -> list[int]:
