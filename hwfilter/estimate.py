@@ -303,21 +303,29 @@ class _Leaf:
 
 @dataclass
 class _Bin:
-    """One two-input addition of the balanced tree the hardware pass writes."""
+    """One two-input addition (``op`` ``+`` or ``-``) of the tree the hardware pass writes."""
 
     a: object
     b: object
+    op: str
     lsb: int
     msb: int
 
 
 def _pair_tree(terms: list):
-    """The balanced tree of two-input additions over ``terms``, paired in order."""
+    """The balanced tree over signed ``terms`` ``(sign, operand)``, as the hardware pass
+    pairs them: equal signs add (keeping the sign), unequal ones subtract the negative
+    operand from the positive one. Returns ``(sign, tree)``."""
     while len(terms) > 1:
-        nxt = [
-            _Bin(a, b, min(a.lsb, b.lsb), max(a.msb, b.msb) + 1)
-            for a, b in zip(terms[0::2], terms[1::2])
-        ]
+        nxt = []
+        for (sa, a), (sb, b) in zip(terms[0::2], terms[1::2]):
+            lo, hi = min(a.lsb, b.lsb), max(a.msb, b.msb) + 1
+            if sa == sb:
+                nxt.append((sa, _Bin(a, b, "+", lo, hi)))
+            elif sa > 0:
+                nxt.append((1, _Bin(a, b, "-", lo, hi)))
+            else:
+                nxt.append((1, _Bin(b, a, "-", lo, hi)))
         if len(terms) % 2:
             nxt.append(terms[-1])
         terms = nxt
@@ -718,29 +726,30 @@ class _Model:
         g = self.g
         n = g[name]
         out = []
-        for src in n.inputs:
+        for sign, src in zip(n.signs, n.inputs):
             sn = g[src]
             off = frac - sn.format.frac
             z = self.zeros[src]  # known-zero low bits enter as wiring, not as adder inputs
             if sn.kind == "add" and self._merged_adds.get(src) == name:
-                out.append(_pair_tree(self._terms(src, frac)))
+                sub_sign, sub = _pair_tree(self._terms(src, frac))
+                out.append((sign * sub_sign, sub))
             elif sn.kind == "gain" and self._in_logic(src) and self._only_reader(src) is n:
                 rows = self._rows_of_gain(sn)
                 zin = self.zeros[sn.inputs[0]]
                 width = g[sn.inputs[0]].format.bits - zin
                 off += zin
                 lo = off + min(rows)
-                out.append(
-                    _Leaf(
-                        lo,
-                        off + max(rows) + width,
-                        tuple(r - min(rows) for r in rows),
-                        negated=sn.value < 0 and len(rows) == 1,
-                    )
+                leaf = _Leaf(
+                    lo,
+                    off + max(rows) + width,
+                    tuple(r - min(rows) for r in rows),
+                    negated=sn.value < 0 and len(rows) == 1,
                 )
+                out.append((sign, leaf))
             else:
                 dsp = src if self.single_block(src) and self._only_reader(src) is n else ""
-                out.append(_Leaf(off + min(z, sn.format.bits - 1), off + sn.format.bits, dsp=dsp))
+                lo = off + min(z, sn.format.bits - 1)
+                out.append((sign, _Leaf(lo, off + sn.format.bits, dsp=dsp)))
         return out
 
     def _sum_costs(self):
@@ -754,44 +763,75 @@ class _Model:
                 self._add_luts("multipliers", luts)
                 self.times[root.name] = t
                 continue
-            tree = _pair_tree(self._terms(root.name, root.format.frac))
+            _, tree = _pair_tree(self._terms(root.name, root.format.frac))
             width = root.format.bits
             extra = []
             q = self._only_reader(root.name)
             if q is not None and q.kind == "quantize":
-                k = self._dropped(q)
-                if k > 0 and q.rounding == "half-up":
-                    # ((v >> (k - 1)) + 1) >> 1: the increment is a carry into the sum
-                    self._merged_rounding.add(q.name)
+                # the rounding addition reads the sum in part ((v >> (k - 1)) + 1 for
+                # half-up): it stays an adder of its own (see _quantize)
                 if q.overflow == "wrap" or not self._saturates(q):
                     # bits above the kept word are never read: the tool drops them
-                    width = min(width, g[q.inputs[0]].format.frac - q.format.frac
-                                + q.format.bits)
+                    width = min(width, g[q.inputs[0]].format.frac - q.format.frac + q.format.bits)
             luts, t = self._tree_cost(tree, width, extra, root.name)
             self._add_luts("sums", luts)
             self.times[root.name] = t
 
     def _tree_cost(self, tree, width: int, extra: list, root: str) -> tuple[float, float]:
-        """LUTs and delay of one sum: all its operands in one compressor tree.
+        """LUTs and delay of one sum tree: which additions share one compressor.
 
-        The tool keeps some two-input additions of the tree apart (when part of a result
-        has a second reader); the calibration found the single-tree count closer on
-        average (docs/estimates.md), so every operand is counted in one tree here.
+        The hardware pass adds two words at different offsets by passing the lower
+        word's extra low bits through as wiring and adding its upper part: that word is
+        then read in part, so the tool keeps its addition apart (its result is one operand
+        of the addition above; Yosys ``alumacc`` merges only results read whole). A word
+        read whole merges: its operands join the addition above in one multi-operand sum
+        (a compressor tree and one carry-chain adder), but only when it is a plain
+        adder output: a result whose low bits were passed around its adder is a
+        concatenation, which the tool does not merge either.
         """
         leaves: list = list(extra)
+        luts = 0.0
+        child_time = 0.0
 
-        def flat(node):
+        def operand(node, lsb: int, whole: bool, negated: bool = False):
+            nonlocal luts, child_time
             if isinstance(node, _Leaf):
+                if lsb != node.lsb and len(node.rows) == 1:
+                    node = _Leaf(lsb, node.msb, dsp=node.dsp, negated=negated)
+                elif negated:
+                    node = _Leaf(node.lsb, node.msb, node.rows, node.dsp, True)
                 leaves.append(node)
+            elif whole and node.a.lsb == node.b.lsb:
+                gather(node)  # a plain word (no bits passed around the adder): merges
             else:
-                flat(node.a)
-                flat(node.b)
+                sub_luts, sub_t = self._tree_cost(node, min(node.msb, width), [], "")
+                luts += sub_luts
+                child_time = max(child_time, sub_t)
+                leaves.append(_Leaf(lsb, node.msb, negated=negated))
 
-        flat(tree)
-        luts, t = self._cluster(leaves, width, absorb=bool(root))
+        def gather(node):
+            a, b = node.a, node.b
+            if a.lsb == b.lsb:
+                operand(a, a.lsb, True)
+                operand(b, b.lsb, True, node.op == "-")
+            elif a.lsb < b.lsb:  # a's low bits pass through; its upper part is added
+                operand(a, b.lsb, False)
+                operand(b, b.lsb, True, node.op == "-")
+            elif node.op == "+":  # b's low bits pass through
+                operand(a, a.lsb, True)
+                operand(b, a.lsb, False)
+            else:  # (a << d) - b: the shifted a is read in part, -b needs the whole chain
+                operand(a, a.lsb, False)
+                operand(b, b.lsb, True, True)
+
+        if isinstance(tree, _Leaf):
+            leaves.append(tree)
+        else:
+            gather(tree)
+        own, t = self._cluster(leaves, width, absorb=bool(root))
         if root and self._absorbed_here:
             self._absorbed_sums.add(root)
-        return luts, t
+        return luts + own, child_time + t
 
     def _cluster(self, leaves: list, width: int, *, absorb: bool) -> tuple[float, float]:
         """LUTs and delay of one multi-operand sum (a compressor tree and a carry adder).
@@ -826,7 +866,10 @@ class _Model:
                 heights[c] += 1
         fa = sum(max(0, h - 2) for h in heights)
         first = next((c for c, h in enumerate(heights) if h >= 2), width)
-        final = width - first
+        low = min(lsbs)
+        if any(leaf.negated and leaf.lsb == low for leaf in leaves):
+            first = low  # the low bits of a subtracted word need the carry chain
+        final = max(width - first, 0)
         levels = _dadda_levels(max(heights, default=0))
         luts = self.fa_cost(levels) * fa + final
         t = d.routing + levels * (d.lut + d.routing) + self.carry(final)
