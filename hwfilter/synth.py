@@ -634,7 +634,10 @@ def cross_check(
             "input and output registers"
         )
         if t.path_signals:
-            notes.append("tool critical path through: " + " -> ".join(t.path_signals))
+            notes.append(
+                "tool critical path, by the signal names its cells carry: "
+                + " -> ".join(t.path_signals)
+            )
         notes.append("estimated critical path: " + " -> ".join(test.critical_path))
     elif timing:
         notes.append(

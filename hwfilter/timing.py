@@ -275,7 +275,8 @@ def longest_path_matrix_bound(l1) -> tuple[float, int, int]:
     best, arg_i, arg_m = 0.0, -1, 0
     for m in range(1, d + 1):
         for i in range(d):
-            if cur[i][i] != NO_PATH and cur[i][i] / m > best:
+            # a strictly larger ratio only (a loop walked twice ties with itself)
+            if cur[i][i] != NO_PATH and cur[i][i] / m > best * (1 + 1e-12) + 1e-15:
                 best, arg_i, arg_m = cur[i][i] / m, i, m
         if m == d:
             break

@@ -169,8 +169,9 @@ def test_realizations_against_brute_force(form, section):
     dfg = dataflow_graph(g, times)
     ib = iteration_bound(dfg)
     assert ib.bound_ns == pytest.approx(float(_brute_force_bound(dfg)))
-    # the reported loop attains the bound
+    # the reported loop attains the bound, and is a simple loop (not one walked twice)
     assert ib.loop_ns / ib.loop_registers == pytest.approx(ib.bound_ns)
+    assert len(set(ib.loop)) == len(ib.loop)
 
 
 @st.composite

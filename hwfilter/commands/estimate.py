@@ -216,7 +216,8 @@ def render_estimate(e, profile) -> str:
         + ")",
         f"  critical path     {e.critical_path_ns:.2f} ns: " + " -> ".join(e.critical_path),
         f"  Fmax              {e.fmax_mhz:.1f} MHz",
-        f"  latency           {e.latency_cycles} cycles, {e.cycles_per_sample} cycle(s) per sample",
+        f"  latency           {e.latency_cycles} clock cycle(s), {e.cycles_per_sample} "
+        "cycle(s) per sample",
     ]
     if e.iteration_bound_ns > 0:
         lines.append(
