@@ -202,10 +202,9 @@ int main(int argc, char** argv) {{
     if (idle_every > 0 && since_idle >= idle_every) {{ offer = false; since_idle = 0; }}
     top->i___05Fvalid = offer;
     if (offer) top->i___05Fpayload = (uint64_t)x[n_in] & UINT64_C({in_mask});
-    top->eval();
+    top->clk = 0; top->eval();  // falling edge: inputs and i__ready settle
     const bool accepted = offer && top->i___05Fready;
-    top->clk = 1; top->eval();
-    top->clk = 0; top->eval();
+    top->clk = 1; top->eval();  // rising edge: the design takes the sample
     if (accepted) {{ n_in++; since_idle++; }}
     cycles++;
     if (top->o___05Fvalid) y.push_back(sign_extend((uint64_t)top->o___05Fpayload, {ob}));
