@@ -63,6 +63,8 @@ __all__ = [
     "can_overflow",
     "rounded_range",
     "constant_low_bits",
+    "read_stage",
+    "balance_length",
 ]
 
 #: pipelining options, in order of increasing registers
