@@ -213,7 +213,7 @@ def _verify(g, pipelining, manifest, build_dir: Path, progress) -> list[dict]:
     from .reference import simulate_integer
 
     runs = []
-    vec = vector_set(g, manifest["vectors"]["samples"], seed=1)
+    vec = vector_set(g, manifest["vectors"]["samples"], seed=manifest["vectors"]["seed"])
     expected = simulate_integer(g, vec.words).output
     res = run_amaranth(g, vec.words, pipelining=pipelining, idle=idle_pattern(len(vec.words), 7))
     mm = first_mismatch(vec.words, expected, res.output)
@@ -402,6 +402,7 @@ def run_job(
     clock_mhz: float | None = None,
     pipelining: str | None = None,
     samples: int = 2048,
+    seed: int = 1,
     compare: bool = True,
     progress=sys.stderr,
 ) -> JobResult:
@@ -439,7 +440,7 @@ def run_job(
     stage = _stage_dir(out)
     try:
         build_dir = stage / "build"
-        manifest = write_build(g, build_dir, pipelining=pipe, samples=samples)
+        manifest = write_build(g, build_dir, pipelining=pipe, samples=samples, seed=seed)
         pr.step(
             STEPS[4],
             f"module {manifest['module']}, latency {manifest['latency_cycles']}, "

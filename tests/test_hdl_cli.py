@@ -43,7 +43,7 @@ def filt(tmp_path):
 
 def test_build_writes_the_folder(filt, tmp_path, capsys):
     out = tmp_path / "out"
-    assert main(["build", str(filt), "-o", str(out), "--samples", "256"]) == 0
+    assert main(["build", str(filt), "-o", str(out), "--samples", "256", "--hardware-only"]) == 0
     text = capsys.readouterr().out
     assert "module lp_cli: pipelining registered-products" in text
     m = json.loads((out / "build.json").read_text())
@@ -51,7 +51,9 @@ def test_build_writes_the_folder(filt, tmp_path, capsys):
     assert m["vectors"]["samples"] == 256
     assert (out / "lp_cli.v").read_text().count("module lp_cli(") == 1
     # the command line overrides the file
-    assert main(["build", str(filt), "-o", str(out), "--pipelining", "none"]) == 0
+    assert (
+        main(["build", str(filt), "-o", str(out), "--pipelining", "none", "--hardware-only"]) == 0
+    )
     assert json.loads((out / "build.json").read_text())["latency_cycles"] == 1
 
 

@@ -7,7 +7,10 @@ from ..hdl import PIPELININGS
 from ..hdl.build import write_build
 
 NAME = "build"
-HELP = "write the Verilog module, a self-checking testbench, test vectors and build.json"
+HELP = (
+    "the whole job: formats, analysis, Verilog, testbench and vectors, bit-exact proof in "
+    "simulators, estimate, report"
+)
 
 #: vector set length when --samples is not given
 DEFAULT_SAMPLES = 2048
@@ -28,6 +31,23 @@ def add_arguments(p):
         help=f"length of the test vector set (default {DEFAULT_SAMPLES})",
     )
     p.add_argument("--seed", type=int, default=1, help="seed of the random vectors (default 1)")
+    p.add_argument(
+        "--device",
+        help="device profile for the estimate (name or path; default: the file's device, "
+        "else ecp5-25k)",
+    )
+    p.add_argument("--clock", type=float, metavar="MHZ", help="clock for the sample rate")
+    p.add_argument(
+        "--no-compare",
+        action="store_true",
+        help="estimate only the file's realization (default: compare every realization)",
+    )
+    p.add_argument(
+        "--hardware-only",
+        action="store_true",
+        help="write only the Verilog, testbench, vectors and build.json (no analysis, "
+        "verification, estimate or report)",
+    )
 
 
 def pipelining_of(spec, args) -> str:
@@ -44,6 +64,8 @@ def run(args) -> int:
 
     if args.samples < 1:
         raise FilterFileError(f"--samples must be a positive integer, not {args.samples!r}")
+    if not args.hardware_only:
+        return _whole_job(args)
     spec = load(args.file)
     graph = quantized_graph(spec)
     pipelining = pipelining_of(spec, args)
@@ -64,3 +86,26 @@ def run(args) -> int:
     print(f"wrote {args.output}: {files}, build.json ({m['vectors']['samples']} test vectors)")
     print(f"run the testbench: cd {args.output} && {m['simulate']['iverilog']}")
     return 0
+
+
+def _whole_job(args) -> int:
+    """Run :func:`hwfilter.job.run_job`; print the summary; 1 when a verdict failed."""
+    import sys
+
+    from ..job import run_job
+
+    res = run_job(
+        args.file,
+        args.output,
+        device=args.device,
+        clock_mhz=args.clock,
+        pipelining=args.pipelining,
+        samples=args.samples,
+        seed=args.seed,
+        compare=not args.no_compare,
+        progress=sys.stderr,
+    )
+    print("\n".join(res.summary))
+    if res.exit_code:
+        print("build finished with a failed verdict (see advice above and report.html)")
+    return res.exit_code
