@@ -483,7 +483,8 @@ def run_job(
                 "overflow_reason": (
                     f"(proven by the {spec.fixed.scaling} worst case)"
                     if not a["overflow_possible"]
-                    else f"at {', '.join(a['overflow_nodes'])}; {spec.fixed.overflow} applies"
+                    else f"(possible at {', '.join(a['overflow_nodes'])}; "
+                    f"{spec.fixed.overflow} applies)"
                 ),
                 "limit_cycle_lsb": a["limit_cycle_lsb"],
                 "spec_met": resp.get("spec_met"),
@@ -540,7 +541,7 @@ def _summary(r: dict, out: Path) -> list[str]:
         f"{_num(r['sqnr'].get('measured_db'))} dB ({r['sqnr'].get('input', '')})",
         f"  resources: {e['multipliers']} multipliers, {e['dsp_blocks']:g} DSP blocks, "
         f"{e['luts']} LUTs, {e['registers']} flip-flops; Fmax {e['fmax_mhz']:.1f} MHz; "
-        f"latency {e['latency_cycles']} clock(s)",
+        f"latency {e['latency_cycles']} clock(s); fits {r['device']}: {yes[e['fits']]}",
         f"  files in {out}: {', '.join(r['files'])}",
     ]
     for tip in r["advice"]:
