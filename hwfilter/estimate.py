@@ -312,6 +312,16 @@ class _Bin:
     msb: int
 
 
+def _plain(node: _Bin) -> bool:
+    """Whether the hardware pass writes ``node`` as one adder whose output is the word.
+
+    Operands at one offset add directly; ``(a << d) - b`` (the subtrahend lower)
+    subtracts whole words. Otherwise the lower operand's extra low bits pass around the
+    adder and the word is a concatenation.
+    """
+    return node.a.lsb == node.b.lsb or (node.op == "-" and node.b.lsb < node.a.lsb)
+
+
 def _pair_tree(terms: list):
     """The balanced tree over signed ``terms`` ``(sign, operand)``, as the hardware pass
     pairs them: equal signs add (keeping the sign), unequal ones subtract the negative
@@ -801,7 +811,7 @@ class _Model:
                 elif negated:
                     node = _Leaf(node.lsb, node.msb, node.rows, node.dsp, True)
                 leaves.append(node)
-            elif whole and node.a.lsb == node.b.lsb:
+            elif whole and _plain(node):
                 gather(node)  # a plain word (no bits passed around the adder): merges
             else:
                 sub_luts, sub_t = self._tree_cost(node, min(node.msb, width), [], "")

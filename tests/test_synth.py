@@ -211,7 +211,10 @@ def _calibration_cases():
 
 # realizations whose LUT estimate misses the 25 % bound at the last calibration (measured
 # ratios in docs/estimates.md); the test then expects the miss, and fails if it passes
-LUT_MISSES: set = set()
+LUT_MISSES = {
+    ("lp4", "direct-form-1", None),  # 0.60: the tool maps its 7-operand sum to wide LUTs
+    ("fir15", "fir-symmetric", None),  # 1.25 (just over): pre-adders cheaper than counted
+}
 
 
 @pytest.mark.slow
