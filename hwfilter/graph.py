@@ -35,7 +35,7 @@ from dataclasses import dataclass, field
 
 from .fixed import Format
 
-__all__ = ["NODE_KINDS", "Node", "Graph", "GraphError"]
+__all__ = ["NODE_KINDS", "Node", "Graph", "GraphError", "strongly_connected_components"]
 
 NODE_KINDS = ("input", "output", "delay", "gain", "add", "quantize")
 _ARITY = {"input": 0, "output": 1, "delay": 1, "gain": 1, "quantize": 1}
@@ -213,3 +213,55 @@ class Graph:
             c[n.kind] += 1
         c["adders"] = sum(len(n.inputs) - 1 for n in self.of_kind("add"))
         return c
+
+
+def strongly_connected_components(successors: dict) -> list[list]:
+    """Strongly connected components of a directed graph (Tarjan's algorithm, iterative).
+
+    ``successors`` maps every vertex to the vertices it has edges to (every successor
+    must itself be a key). Components come out in Tarjan's order (reverse topological:
+    a component before those that reach it), vertices in the order they were closed.
+    """
+    index: dict = {}
+    low: dict = {}
+    on_stack: set = set()
+    stack: list = []
+    out: list[list] = []
+    counter = 0
+    for root in successors:
+        if root in index:
+            continue
+        work = [(root, 0)]
+        index[root] = low[root] = counter
+        counter += 1
+        stack.append(root)
+        on_stack.add(root)
+        while work:
+            u, pos = work[-1]
+            succ = successors[u]
+            if pos < len(succ):
+                work[-1] = (u, pos + 1)
+                w = succ[pos]
+                if w not in index:
+                    index[w] = low[w] = counter
+                    counter += 1
+                    stack.append(w)
+                    on_stack.add(w)
+                    work.append((w, 0))
+                elif w in on_stack:
+                    low[u] = min(low[u], index[w])
+                continue
+            work.pop()
+            if work:
+                p = work[-1][0]
+                low[p] = min(low[p], low[u])
+            if low[u] == index[u]:
+                comp = []
+                while True:
+                    w = stack.pop()
+                    on_stack.discard(w)
+                    comp.append(w)
+                    if w == u:
+                        break
+                out.append(comp)
+    return out

@@ -46,7 +46,7 @@ import numpy as np
 from .errors import FilterFileError
 from .fixed import Format
 from .formats import default_quantizer_formats
-from .graph import Graph, Node
+from .graph import Graph, Node, strongly_connected_components
 from .linear import LinearModel, l1_parts, l2_norm, linear_model, linf_norm
 from .noise import rounding_error_interval
 
@@ -522,44 +522,7 @@ def _sccs(graph: Graph) -> dict[str, int]:
     for n in graph.nodes:
         for s in n.inputs:
             succ[s].append(n.name)
-    index, low, on, stack, size = {}, {}, set(), [], {}
-    counter = [0]
-    for root in succ:
-        if root in index:
-            continue
-        work = [(root, 0)]
-        index[root] = low[root] = counter[0]
-        counter[0] += 1
-        stack.append(root)
-        on.add(root)
-        while work:
-            u, pos = work[-1]
-            if pos < len(succ[u]):
-                work[-1] = (u, pos + 1)
-                w = succ[u][pos]
-                if w not in index:
-                    index[w] = low[w] = counter[0]
-                    counter[0] += 1
-                    stack.append(w)
-                    on.add(w)
-                    work.append((w, 0))
-                elif w in on:
-                    low[u] = min(low[u], index[w])
-                continue
-            work.pop()
-            if work:
-                low[work[-1][0]] = min(low[work[-1][0]], low[u])
-            if low[u] == index[u]:
-                comp = []
-                while True:
-                    w = stack.pop()
-                    on.discard(w)
-                    comp.append(w)
-                    if w == u:
-                        break
-                for w in comp:
-                    size[w] = len(comp)
-    return size
+    return {w: len(comp) for comp in strongly_connected_components(succ) for w in comp}
 
 
 def _section_io(graph: Graph) -> list[tuple[str, str, list[str]]]:

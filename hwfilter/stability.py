@@ -26,7 +26,7 @@ from fractions import Fraction
 import numpy as np
 import scipy.optimize
 
-from .graph import Graph
+from .graph import Graph, strongly_connected_components
 from .linear import LinearModel, linear_model
 
 __all__ = [
@@ -56,50 +56,12 @@ def loop_blocks(model: LinearModel) -> list[list[int]]:
     States in no loop are left out: each contributes a pole at ``z = 0``.
     """
     n = model.n_states
-    succ = [[r for r in range(n) if model.A[r, i] != 0.0] for i in range(n)]
-    index, low, on, stack, out = {}, {}, set(), [], []
-    counter = [0]
-
-    def strong(v):
-        # iterative Tarjan: (node, iterator position)
-        work = [(v, 0)]
-        index[v] = low[v] = counter[0]
-        counter[0] += 1
-        stack.append(v)
-        on.add(v)
-        while work:
-            u, pos = work[-1]
-            if pos < len(succ[u]):
-                work[-1] = (u, pos + 1)
-                w = succ[u][pos]
-                if w not in index:
-                    index[w] = low[w] = counter[0]
-                    counter[0] += 1
-                    stack.append(w)
-                    on.add(w)
-                    work.append((w, 0))
-                elif w in on:
-                    low[u] = min(low[u], index[w])
-                continue
-            work.pop()
-            if work:
-                p = work[-1][0]
-                low[p] = min(low[p], low[u])
-            if low[u] == index[u]:
-                comp = []
-                while True:
-                    w = stack.pop()
-                    on.discard(w)
-                    comp.append(w)
-                    if w == u:
-                        break
-                if len(comp) > 1 or model.A[u, u] != 0.0:
-                    out.append(sorted(comp))
-
-    for v in range(n):
-        if v not in index:
-            strong(v)
-    return sorted(out)
+    succ = {i: [r for r in range(n) if model.A[r, i] != 0.0] for i in range(n)}
+    return sorted(
+        sorted(comp)
+        for comp in strongly_connected_components(succ)
+        if len(comp) > 1 or model.A[comp[0], comp[0]] != 0.0
+    )
 
 
 def _charpoly(A: list[list[Fraction]]) -> list[Fraction]:

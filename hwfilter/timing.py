@@ -25,7 +25,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .graph import Graph, GraphError
+from .graph import Graph, GraphError, strongly_connected_components
 
 __all__ = [
     "NO_PATH",
@@ -212,45 +212,7 @@ def _loop_registers(dfg: DataFlowGraph):
 def _components(dfg: DataFlowGraph) -> dict[str, int]:
     """Strongly connected component index of every node (Tarjan, iterative)."""
     succ = {n: [v for v, _ in vs] for n, vs in dfg.successors().items()}
-    index: dict[str, int] = {}
-    low: dict[str, int] = {}
-    comp: dict[str, int] = {}
-    stack: list[str] = []
-    on: set[str] = set()
-    counter = 0
-    ncomp = 0
-    for root in dfg.times:
-        if root in index:
-            continue
-        work = [(root, 0)]
-        while work:
-            v, i = work.pop()
-            if i == 0:
-                index[v] = low[v] = counter
-                counter += 1
-                stack.append(v)
-                on.add(v)
-            for j in range(i, len(succ[v])):
-                w = succ[v][j]
-                if w not in index:
-                    work.append((v, j + 1))
-                    work.append((w, 0))
-                    break
-                if w in on:
-                    low[v] = min(low[v], index[w])
-            else:
-                if low[v] == index[v]:
-                    while True:
-                        w = stack.pop()
-                        on.discard(w)
-                        comp[w] = ncomp
-                        if w == v:
-                            break
-                    ncomp += 1
-                if work:
-                    p = work[-1][0]
-                    low[p] = min(low[p], low[v])
-    return comp
+    return {w: k for k, comp in enumerate(strongly_connected_components(succ)) for w in comp}
 
 
 def longest_path_matrix_bound(l1) -> tuple[float, int, int]:

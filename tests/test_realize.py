@@ -122,3 +122,21 @@ def test_graph_check_messages():
         Graph("g", (x, Node("d", "delay", ()), Node("out", "output", ("x",)))).check()
     with pytest.raises(GraphError, match="used twice"):
         Graph("g", (x, Node("x", "delay", ("x",)), Node("out", "output", ("x",)))).check()
+
+
+def test_strongly_connected_components_against_brute_force(rng):
+    # reachability both ways (transitive closure by repeated squaring, numpy) defines the
+    # components independently of Tarjan's algorithm
+    from hwfilter.graph import strongly_connected_components
+
+    for trial in range(20):
+        n = int(rng.integers(1, 12))
+        adj = rng.random((n, n)) < 0.2
+        succ = {i: [j for j in range(n) if adj[i, j]] for i in range(n)}
+        reach = adj | np.eye(n, dtype=bool)
+        for _ in range(n):
+            reach = reach | ((reach.astype(int) @ reach.astype(int)) > 0)
+        want = {frozenset(j for j in range(n) if reach[i, j] and reach[j, i]) for i in range(n)}
+        got = strongly_connected_components(succ)
+        assert {frozenset(c) for c in got} == want
+        assert sum(len(c) for c in got) == n

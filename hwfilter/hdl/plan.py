@@ -50,7 +50,7 @@ from dataclasses import dataclass, field
 
 from ..fixed import is_power_of_two, round_shift
 from ..formats import node_ranges
-from ..graph import Graph, GraphError
+from ..graph import Graph, GraphError, strongly_connected_components
 
 __all__ = [
     "PIPELININGS",
@@ -170,54 +170,16 @@ def is_multiplier(node) -> bool:
 
 def loop_nodes(graph: Graph) -> frozenset:
     """Names of the nodes on some recursive loop (strongly connected, through delays)."""
-    index: dict[str, int] = {}
-    low: dict[str, int] = {}
-    on_stack: set[str] = set()
-    stack: list[str] = []
-    result: set[str] = set()
-    counter = 0
-    # edges u -> v when v reads u; iterate with an explicit stack (Tarjan's algorithm)
     succ: dict[str, list[str]] = {n.name: [] for n in graph.nodes}
     for n in graph.nodes:
         for s in n.inputs:
             succ[s].append(n.name)
-    for root in (n.name for n in graph.nodes):
-        if root in index:
-            continue
-        work = [(root, 0)]
-        while work:
-            v, i = work.pop()
-            if i == 0:
-                index[v] = low[v] = counter
-                counter += 1
-                stack.append(v)
-                on_stack.add(v)
-            recurse = False
-            for j in range(i, len(succ[v])):
-                w = succ[v][j]
-                if w not in index:
-                    work.append((v, j + 1))
-                    work.append((w, 0))
-                    recurse = True
-                    break
-                if w in on_stack:
-                    low[v] = min(low[v], index[w])
-            if recurse:
-                continue
-            if low[v] == index[v]:
-                comp = []
-                while True:
-                    w = stack.pop()
-                    on_stack.discard(w)
-                    comp.append(w)
-                    if w == v:
-                        break
-                if len(comp) > 1 or v in succ[v]:
-                    result.update(comp)
-            if work:
-                parent = work[-1][0]
-                low[parent] = min(low[parent], low[v])
-    return frozenset(result)
+    return frozenset(
+        w
+        for comp in strongly_connected_components(succ)
+        if len(comp) > 1 or comp[0] in succ[comp[0]]
+        for w in comp
+    )
 
 
 def rounded_range(graph: Graph, node, ranges: dict | None = None) -> tuple[int, int]:
