@@ -35,8 +35,29 @@ from dataclasses import dataclass, field
 
 from .fixed import Format
 
-__all__ = ["NODE_KINDS", "Node", "Graph", "GraphError", "strongly_connected_components"]
+__all__ = [
+    "NODE_KINDS",
+    "Node",
+    "Graph",
+    "GraphError",
+    "strongly_connected_components",
+    "VERILOG_KEYWORDS",
+]
 
+#: Verilog-2005 reserved words (IEEE 1364-2005 Annex B): no module or signal may use one
+VERILOG_KEYWORDS = frozenset(
+    """always and assign automatic begin buf bufif0 bufif1 case casex casez cell cmos config
+    deassign default defparam design disable edge else end endcase endconfig endfunction
+    endgenerate endmodule endprimitive endspecify endtable endtask event for force forever
+    fork function generate genvar highz0 highz1 if ifnone incdir include initial inout input
+    instance integer join large liblist library localparam macromodule medium module nand
+    negedge nmos nor noshowcancelled not notif0 notif1 or output parameter pmos posedge
+    primitive pull0 pull1 pulldown pullup pulsestyle_onevent pulsestyle_ondetect rcmos real
+    realtime reg release repeat rnmos rpmos rtran rtranif0 rtranif1 scalared showcancelled
+    signed small specify specparam strong0 strong1 supply0 supply1 table task time tran
+    tranif0 tranif1 tri tri0 tri1 triand trior trireg unsigned use uwire vectored wait wand
+    weak0 weak1 while wire wor xnor xor""".split()
+)
 NODE_KINDS = ("input", "output", "delay", "gain", "add", "quantize")
 _ARITY = {"input": 0, "output": 1, "delay": 1, "gain": 1, "quantize": 1}
 

@@ -27,7 +27,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .errors import FilterFileError, QuantizationWarning
+from .errors import QuantizationWarning
 from .pipeline import float_graph, quantized_graph
 from .spec import FilterSpec, load
 
@@ -362,18 +362,6 @@ def _stage_dir(out: Path) -> Path:
     return Path(tempfile.mkdtemp(prefix=f".{out.name}.job-", dir=out.parent))
 
 
-def _check_target(out: Path):
-    from .hdl.build import MANIFEST
-
-    if out.exists() and not out.is_dir():
-        raise FilterFileError(f"output folder must be a folder, not the file {str(out)!r}")
-    if out.is_dir() and any(out.iterdir()) and not (out / MANIFEST).is_file():
-        raise FilterFileError(
-            f"output folder must be new, empty or an earlier build (with {MANIFEST}); "
-            f"{str(out)!r} holds other files"
-        )
-
-
 def _install(stage: Path, out: Path):
     """Move the finished build into place (replacing an earlier build).
 
@@ -407,12 +395,12 @@ def run_job(
     progress=sys.stderr,
 ) -> JobResult:
     """Run the whole job on filter file ``path`` into ``out_dir`` (see the module doc)."""
-    from .hdl.build import write_build
+    from .hdl.build import check_target, write_build
     from .report import CAUTION, render_html, to_json
     from .signals import atomic_write_text
 
     out = Path(out_dir)
-    _check_target(out)
+    check_target(out)
     pr = _Progress(progress)
     spec = load(path)
     pr.step(STEPS[0], f"{spec.name} from {spec.source}")

@@ -64,6 +64,7 @@ from scipy import signal
 
 from .errors import FilterFileError, QuantizationWarning
 from .fixed import OVERFLOW_RULES, ROUNDING_RULES, Format
+from .graph import VERILOG_KEYWORDS
 from .realize import FIR_FORMS, FORMS, GAIN_SPREADS, ORDERS, PAIRINGS, SECTION_FORMS
 
 __all__ = [
@@ -89,20 +90,6 @@ DESIGN_METHODS = IIR_METHODS + FIR_METHODS
 BANDS = ("lowpass", "highpass", "bandpass", "bandstop")
 SCALINGS = ("l1", "l2", "linf", "none")
 PIPELININGS = ("none", "registered-products", "registered-all-products")
-
-_VERILOG_KEYWORDS = frozenset(
-    """always and assign automatic begin buf bufif0 bufif1 case casex casez cell cmos config
-    deassign default defparam design disable edge else end endcase endconfig endfunction
-    endgenerate endmodule endprimitive endspecify endtable endtask event for force forever
-    fork function generate genvar highz0 highz1 if ifnone incdir include initial inout input
-    instance integer join large liblist library localparam macromodule medium module nand
-    negedge nmos nor noshowcancelled not notif0 notif1 or output parameter pmos posedge
-    primitive pull0 pull1 pulldown pullup pulsestyle_ondetect pulsestyle_onevent rcmos real
-    realtime reg release repeat rnmos rpmos rtran rtranif0 rtranif1 scalared showcancelled
-    signed small specify specparam strong0 strong1 supply0 supply1 table task time tran
-    tranif0 tranif1 tri tri0 tri1 triand trior trireg unsigned use uwire vectored wait wand
-    weak0 weak1 while wire wor xnor xor""".split()
-)
 
 
 @dataclass(frozen=True)
@@ -317,7 +304,7 @@ def _check_name(source: str, name) -> str:
             source=source,
             field="name",
         )
-    if name in _VERILOG_KEYWORDS or keyword.iskeyword(name):
+    if name in VERILOG_KEYWORDS or keyword.iskeyword(name):
         raise FilterFileError(
             f"must not be a reserved word, not {name!r}", source=source, field="name"
         )

@@ -37,7 +37,7 @@ from .testbench import write_testbench_files
 from .vectors import vector_set
 from .verilog import PORTS, generate_verilog, module_name
 
-__all__ = ["write_build", "MANIFEST", "simulator_commands"]
+__all__ = ["write_build", "MANIFEST", "simulator_commands", "check_target"]
 
 #: name of the manifest file in a build folder
 MANIFEST = "build.json"
@@ -56,7 +56,8 @@ def simulator_commands(name: str) -> dict[str, str]:
     }
 
 
-def _check_target(out: Path) -> None:
+def check_target(out: Path) -> None:
+    """Refuse an output path that is a file, or a folder holding anything but a build."""
     if out.exists() and not out.is_dir():
         raise FilterFileError(f"output folder must be a folder, not the file {str(out)!r}")
     if out.is_dir() and any(out.iterdir()) and not (out / MANIFEST).is_file():
@@ -136,7 +137,7 @@ def write_build(
         When ``out_dir`` is a file or a folder holding something other than a build.
     """
     out = Path(out_dir)
-    _check_target(out)
+    check_target(out)
     # everything that can fail on bad input happens before any file is written
     verilog = generate_verilog(graph, pipelining=pipelining)
     vectors = vector_set(graph, samples, seed=seed)

@@ -50,7 +50,7 @@ from dataclasses import dataclass, field
 
 from ..fixed import is_power_of_two, round_shift
 from ..formats import node_ranges
-from ..graph import Graph, GraphError, strongly_connected_components
+from ..graph import VERILOG_KEYWORDS, Graph, GraphError, strongly_connected_components
 
 __all__ = [
     "PIPELININGS",
@@ -72,19 +72,7 @@ PIPELININGS = ("none", "registered-products", "registered-all-products")
 
 #: Verilog-2005 keywords (IEEE 1364-2005 Annex B) and names the ports use; a node named
 #: like one gets a suffix
-_RESERVED = frozenset(
-    """always and assign automatic begin buf bufif0 bufif1 case casex casez cell cmos config
-    deassign default defparam design disable edge else end endcase endconfig endfunction
-    endgenerate endmodule endprimitive endspecify endtable endtask event for force forever
-    fork function generate genvar highz0 highz1 if ifnone incdir include initial inout input
-    instance integer join large liblist library localparam macromodule medium module nand
-    negedge nmos nor noshowcancelled not notif0 notif1 or output parameter pmos posedge
-    primitive pull0 pull1 pulldown pullup pulsestyle_onevent pulsestyle_ondetect rcmos real
-    realtime reg release repeat rnmos rpmos rtran rtranif0 rtranif1 scalared showcancelled
-    signed small specify specparam strong0 strong1 supply0 supply1 table task time tran
-    tranif0 tranif1 tri tri0 tri1 triand trior trireg unsigned use uwire vectored wait wand
-    weak0 weak1 while wire wor xnor xor clk rst accept""".split()
-)
+_RESERVED = VERILOG_KEYWORDS | {"clk", "rst", "accept"}
 
 
 @dataclass(frozen=True)
