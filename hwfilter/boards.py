@@ -111,8 +111,10 @@ class SynthesisFlow:
     option that keeps multipliers in logic (empty: the command's default); ``dsp_option``
     the option that enables hard multipliers (empty: on by default); ``nextpnr`` names
     the place-and-route tool from PyPI (``ecp5``, ``ice40``) or is empty when none
-    exists; ``lut_cells`` weighs cell types as LUT equivalents (``CCU2C = 2``);
-    ``dsp_cells`` weighs hard multiplier cells as blocks.
+    exists; ``adder_trees_with_dsp``: the flow with hard multipliers splits
+    multi-operand sums into two-input adders (no compressor trees); ``lut_cells``
+    weighs cell types as LUT equivalents (``CCU2C = 2``); ``dsp_cells`` weighs hard
+    multiplier cells as blocks.
     """
 
     yosys: str
@@ -121,6 +123,7 @@ class SynthesisFlow:
     nextpnr: str
     nextpnr_args: tuple[str, ...]
     timing_with_dsp: bool
+    adder_trees_with_dsp: bool
     lut_cells: dict
     ff_cells: tuple[str, ...]
     dsp_cells: dict
@@ -283,6 +286,7 @@ _SYNTH_KEYS = (
     "nextpnr",
     "nextpnr_args",
     "timing_with_dsp",
+    "adder_trees_with_dsp",
     "lut_cells",
     "ff_cells",
     "dsp_cells",
@@ -500,6 +504,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         nextpnr=nextpnr,
         nextpnr_args=s.strings("nextpnr_args"),
         timing_with_dsp=s.plain_flag("timing_with_dsp", True),
+        adder_trees_with_dsp=s.plain_flag("adder_trees_with_dsp", False),
         lut_cells=s.weights("lut_cells"),
         ff_cells=s.strings("ff_cells"),
         dsp_cells=s.weights("dsp_cells"),

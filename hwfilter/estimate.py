@@ -439,10 +439,8 @@ def estimate(
         for name in hp.registered:
             if model.single_block(name):
                 absorbed += ff.by_register.get(_reg_name(hp, name), {}).get("kept", 0)
-        for d in graph.delays:
-            src = d.inputs[0]
-            if len(graph.users(src)) == 1 and (model.single_block(src) or model.absorbed_sum(src)):
-                absorbed += ff.by_register.get(_reg_name(hp, d.name), {}).get("kept", 0)
+        # state registers load with an enable (the sample strobe): the flows do not pack
+        # them into the blocks (observed for iCE40 and 6-input-LUT parts)
     if absorbed:
         rb["absorbed"] = -absorbed
     registers = sum(rb.values())
@@ -581,6 +579,9 @@ class _Model:
         self.mode = mode
         self.d = profile.delay
         self.fa_luts = 1 if profile.lut_inputs >= 6 else 2
+        # with hard multipliers some flows split every sum into two-input adders
+        self.adder_trees = mode == "auto" and profile.synthesis.adder_trees_with_dsp
+        self._used_blocks: set[str] = set()
         self.times: dict[str, float] = {}
         self.luts = 0.0
         self.lut_detail = {"sums": 0.0, "quantizers": 0.0, "multipliers": 0.0}
@@ -805,13 +806,20 @@ class _Model:
 
         def operand(node, lsb: int, whole: bool, negated: bool = False):
             nonlocal luts, child_time
+            if isinstance(node, _Leaf) and self.adder_trees and len(node.rows) > 1:
+                # a logic product is a sum of its own rows, then one operand here
+                sub_luts, sub_t = self._cluster([node], node.msb, absorb=False)
+                luts += sub_luts
+                child_time = max(child_time, sub_t)
+                leaves.append(_Leaf(lsb, node.msb, negated=negated))
+                return
             if isinstance(node, _Leaf):
                 if lsb != node.lsb and len(node.rows) == 1:
                     node = _Leaf(lsb, node.msb, dsp=node.dsp, negated=negated)
                 elif negated:
                     node = _Leaf(node.lsb, node.msb, node.rows, node.dsp, True)
                 leaves.append(node)
-            elif whole and _plain(node):
+            elif whole and _plain(node) and not self.adder_trees:
                 gather(node)  # a plain word (no bits passed around the adder): merges
             else:
                 sub_luts, sub_t = self._tree_cost(node, min(node.msb, width), [], "")
@@ -838,7 +846,18 @@ class _Model:
             leaves.append(tree)
         else:
             gather(tree)
-        own, t = self._cluster(leaves, width, absorb=bool(root))
+        if (
+            self.adder_trees
+            and self.p.multiplier.absorbs_post_adder
+            and len(leaves) == 2
+            and width <= max(self.p.multiplier.accumulator_bits, 1)
+        ):
+            dsp = [leaf for leaf in leaves if leaf.dsp and leaf.dsp not in self._used_blocks]
+            if dsp:
+                # the product's block adds the other word: no logic, the block's delay
+                self._used_blocks.add(dsp[0].dsp)
+                return luts, child_time + self.d.routing
+        own, t = self._cluster(leaves, width, absorb=bool(root) and not self.adder_trees)
         if root and self._absorbed_here:
             self._absorbed_sums.add(root)
         return luts + own, child_time + t
