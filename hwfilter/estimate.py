@@ -342,35 +342,6 @@ def _pair_tree(terms: list):
     return terms[0]
 
 
-def _unused_compressor(lsbs: list[int], width: int) -> tuple[int, int, int]:
-    """Full adders of a multi-operand sum as Yosys ``maccmap`` builds them.
-
-    Operands are sign-extended to ``width`` bits; operand ``k`` of the tree holds the bits
-    of every column with more than ``k`` bits, so the operands start at the sorted
-    ``lsbs``. Three operands at a time go through a row of full adders spanning from the
-    lowest of their first bits to the top; the sum and the shifted carry go on. Returns
-    ``(full-adder bits, levels, final adder bits)``.
-    """
-    ops = sorted(lsbs)
-    fa, levels = 0, 0
-    while len(ops) > 2:
-        nxt = []
-        i = 0
-        while i < len(ops):
-            if i + 2 < len(ops):
-                start = min(ops[i : i + 3])
-                fa += max(width - start, 0)
-                nxt += [start, start + 1]
-                i += 3
-            else:
-                nxt.append(ops[i])
-                i += 1
-        ops = nxt
-        levels += 1
-    final = width - max(ops) if len(ops) == 2 else 0
-    return fa, levels, max(final, 0)
-
-
 def _dadda_levels(height: int) -> int:
     """Full-adder levels that reduce a column of ``height`` bits to two (Dadda)."""
     d, levels = 2, 0

