@@ -36,6 +36,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .fixed import round_shift
 from .formats import node_ranges
 from .graph import Graph
 from .linear import l1_parts, linear_model
@@ -136,7 +137,7 @@ class SectionSimulator:
                 v[n.name] = acc
             elif k == "quantize":
                 src = g[n.inputs[0]]
-                r = _round(get(src.name), src.format.frac - n.format.frac, n.rounding)
+                r = round_shift(get(src.name), src.format.frac - n.format.frac, n.rounding)
                 lo, hi = n.format.min_int, n.format.max_int
                 bad = (r < lo) | (r > hi)
                 over |= bad
@@ -152,26 +153,6 @@ class SectionSimulator:
                 raise ValueError(f"limit-cycle search does not know node kind {k!r}")
         nxt = {d: get(g[d].inputs[0]) for d in self.delays}
         return nxt, v, over
-
-
-def _round(v, k: int, rounding: str):
-    """``hwfilter.fixed.round_shift`` for int64 or object arrays."""
-    if k <= 0:
-        return v << -k if k < 0 else v
-    half = 1 << (k - 1)
-    if rounding == "floor":
-        return v >> k
-    if rounding == "half-up":
-        return (v + half) >> k
-    if rounding == "half-even":
-        q = v >> k
-        rem = v - (q << k)
-        up = (rem > half) | ((rem == half) & ((q & 1) == 1))
-        return q + up.astype(q.dtype) if q.dtype != object else q + up.astype(int)
-    neg = v < 0
-    a = np.where(neg, -v, v)
-    m = a >> k if rounding == "toward-zero" else (a + half) >> k
-    return np.where(neg, -m, m)
 
 
 # -- results ------------------------------------------------------------------------

@@ -127,3 +127,11 @@ def test_format_validation_messages():
         Format(8, 1.5)
     with pytest.raises(ValueError, match="rounding must be one of"):
         round_shift(3, 1, "nearest")
+
+
+@pytest.mark.parametrize("rule", ROUNDING_RULES)
+def test_rounding_on_object_arrays_of_wide_words(rule):
+    # words beyond int64 (object arrays of Python ints) round like single Python ints
+    values = [v * 2**70 + d for v in (-3, -1, 0, 2) for d in range(-9, 10)]
+    arr = round_shift(np.array(values, dtype=object), 4, rule)
+    assert [int(t) for t in arr] == [exact_round(v, 4, rule) for v in values]
