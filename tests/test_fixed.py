@@ -32,7 +32,8 @@ def exact_round(v: int, k: int, rule: str) -> int:
     if rule == "half-up":  # ties toward +infinity (common practice: add half, then floor)
         return math.floor(x + Fraction(1, 2))
     if rule == "half-away":  # ties away from zero
-        return int(math.copysign(math.floor(abs(x) + Fraction(1, 2)), x)) if x else 0
+        m = math.floor(abs(x) + Fraction(1, 2))
+        return m if x >= 0 else -m
     if rule == "half-even":  # ties to the even neighbour (IEEE 754 roundTiesToEven)
         if frac == Fraction(1, 2):
             return fl if fl % 2 == 0 else fl + 1
