@@ -144,23 +144,15 @@ def critical_path(dfg: DataFlowGraph, *, launch: float = 0.0, capture: float = 0
         When the register-free edges contain a loop (a delay-free loop).
     """
     pred = {n: [] for n in dfg.times}
-    indeg = {n: 0 for n in dfg.times}
     succ0: dict[str, list[str]] = {n: [] for n in dfg.times}
     for u, v, w in dfg.edges:
         if w == 0:
             pred[v].append(u)
             succ0[u].append(v)
-            indeg[v] += 1
-    order = [n for n in dfg.times if indeg[n] == 0]
-    i = 0
-    while i < len(order):
-        for v in succ0[order[i]]:
-            indeg[v] -= 1
-            if indeg[v] == 0:
-                order.append(v)
-        i += 1
+    order = _zero_order(dfg, succ0)
     if len(order) != len(dfg.times):
-        stuck = sorted(n for n in dfg.times if indeg[n] > 0)
+        done = set(order)
+        stuck = sorted(n for n in dfg.times if n not in done)
         raise GraphError(f"data-flow graph has a loop without registers through {stuck[:6]}")
     arrive: dict[str, float] = {}
     back: dict[str, str | None] = {}
@@ -315,6 +307,7 @@ def iteration_bound(dfg: DataFlowGraph) -> IterationBound:
 
 
 def _zero_order(dfg: DataFlowGraph, zero_succ) -> list[str]:
+    """Kahn's topological order over the register-free edges (nodes on a loop left out)."""
     indeg = {n: 0 for n in dfg.times}
     for u in zero_succ:
         for v in zero_succ[u]:
