@@ -104,7 +104,6 @@ def advice(spec: FilterSpec, analysis: dict, *, form=None, section=None) -> list
 
     out = []
     cb = spec.fixed.coefficient_bits
-    r = spec.response
     if not analysis["stable"]:
         for bits in range(cb + 1, cb + 17):
             if stability(_quiet_graph(_with_bits(spec, bits), form=form, section=section)).stable:
@@ -126,15 +125,7 @@ def advice(spec: FilterSpec, analysis: dict, *, form=None, section=None) -> list
         else:
             for bits in range(cb + 1, cb + 17):
                 g = _quiet_graph(_with_bits(spec, bits), form=form, section=section)
-                resp = response_deviation(
-                    g,
-                    None,
-                    passband=r.passband,
-                    stopband=r.stopband,
-                    passband_ripple_db=r.passband_ripple_db,
-                    stopband_attenuation_db=r.stopband_attenuation_db,
-                    sample_rate=spec.sample_rate,
-                )
+                resp = response_deviation(g, None, **_response_kwargs(spec))
                 if resp["spec_met"]:
                     out.append(f"coefficient_bits {cb} -> {bits} meets the response spec")
                     break
@@ -149,20 +140,30 @@ def advice(spec: FilterSpec, analysis: dict, *, form=None, section=None) -> list
 # -- steps ----------------------------------------------------------------------------
 
 
+def _response_kwargs(spec: FilterSpec) -> dict:
+    """The file's ``[spec]`` as the keyword arguments of the response checks."""
+    r = spec.response
+    if r is None:
+        return {}
+    return dict(
+        passband=r.passband,
+        stopband=r.stopband,
+        passband_ripple_db=r.passband_ripple_db,
+        stopband_attenuation_db=r.stopband_attenuation_db,
+        sample_rate=spec.sample_rate,
+    )
+
+
 def _analyze(spec, g, fg):
     from .analysis import analyze
 
-    r = spec.response
-    kw = {}
-    if r is not None:
-        kw = dict(
-            passband=r.passband,
-            stopband=r.stopband,
-            passband_ripple_db=r.passband_ripple_db,
-            stopband_attenuation_db=r.stopband_attenuation_db,
-            sample_rate=spec.sample_rate,
-        )
-    return analyze(g, fg, scaling=spec.fixed.scaling, overridden=tuple(spec.fixed.nodes), **kw)
+    return analyze(
+        g,
+        fg,
+        scaling=spec.fixed.scaling,
+        overridden=tuple(spec.fixed.nodes),
+        **_response_kwargs(spec),
+    )
 
 
 def _run_emitted_testbench(build_dir: Path, module: str, simulator: str) -> dict:

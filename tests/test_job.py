@@ -159,3 +159,22 @@ def test_failed_build_keeps_the_earlier_one(tmp_path, monkeypatch):
         job.run_job(EXAMPLES / "crossover_low.toml", target, progress=None)
     assert [p.name for p in tmp_path.iterdir()] == ["out"]
     assert [p.name for p in target.iterdir()] == ["build.json"]
+
+
+def test_missed_spec_exits_nonzero_with_advice(tmp_path):
+    # the hum notch as one direct form II keeps its poles inside the circle at 18-bit
+    # coefficients but loses the notch (its walkthrough); the advice is found by trying
+    text = (
+        (EXAMPLES / "hum_notch.toml")
+        .read_text()
+        .replace('form = "cascade"', 'form = "direct-form-2"')
+    )
+    f = tmp_path / "notch_df2.toml"
+    f.write_text(text)
+    res = job.run_job(f, tmp_path / "out", progress=None, compare=False)
+    assert res.exit_code == 1
+    assert res.results["verdicts"]["stable"] is True
+    assert res.results["verdicts"]["spec_met"] is False
+    tips = [t for t in res.results["advice"] if "meets the response spec" in t]
+    assert tips and tips[0].startswith("coefficient_bits 18 -> ")
+    assert (tmp_path / "out" / "report.html").exists()  # the failed verdict is reported
