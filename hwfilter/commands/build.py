@@ -19,11 +19,7 @@ DEFAULT_SAMPLES = 2048
 def add_arguments(p):
     p.add_argument("file", help="filter file (TOML)")
     p.add_argument("-o", "--output", required=True, metavar="DIR", help="build folder")
-    p.add_argument(
-        "--pipelining",
-        choices=PIPELININGS,
-        help="pipeline registers (default: the file's [hardware] pipelining, or none)",
-    )
+    add_pipelining_argument(p)
     p.add_argument(
         "--samples",
         type=int,
@@ -47,6 +43,15 @@ def add_arguments(p):
         action="store_true",
         help="write only the Verilog, testbench, vectors and build.json (no analysis, "
         "verification, estimate or report)",
+    )
+
+
+def add_pipelining_argument(p):
+    """The ``--pipelining`` option shared by build, verify and estimate."""
+    p.add_argument(
+        "--pipelining",
+        choices=PIPELININGS,
+        help="pipeline registers (default: the file's [hardware] pipelining, or none)",
     )
 
 

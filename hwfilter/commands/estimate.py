@@ -22,6 +22,7 @@ from ..errors import FilterFileError
 from ..estimate import MULTIPLIER_MODES, estimate
 from ..pipeline import applicable_realizations, quantized_graph
 from ..spec import load
+from .build import add_pipelining_argument, pipelining_of
 
 __all__ = ["NAME", "HELP", "add_arguments", "run", "compare", "render_estimate", "render_table"]
 
@@ -60,10 +61,7 @@ def add_arguments(p):
         help="constant multipliers: hard blocks as the tool maps them (auto), logic rows, "
         "or canonical-signed-digit shift-add (default auto)",
     )
-    p.add_argument(
-        "--pipelining",
-        help="hardware pipelining option (default: the file's [hardware] pipelining)",
-    )
+    add_pipelining_argument(p)
     p.add_argument("--seed", type=int, default=1, help="nextpnr placement seed (default 1)")
 
 
@@ -76,15 +74,6 @@ def _profile(args, spec):
             field="device",
         )
     return load_profile(name)
-
-
-def _pipelining(args, spec) -> str:
-    from ..hdl import PIPELININGS
-
-    p = args.pipelining or spec.hardware.pipelining
-    if p not in PIPELININGS:
-        raise FilterFileError(f"--pipelining must be one of {', '.join(PIPELININGS)}, not {p!r}")
-    return p
 
 
 def _quality(graph) -> dict:
@@ -258,7 +247,7 @@ def render_cross_check(cc) -> str:
 def run(args) -> int:
     spec = load(args.file)
     profile = _profile(args, spec)
-    pipelining = _pipelining(args, spec)
+    pipelining = pipelining_of(spec, args)
     if args.clock is not None and not args.clock > 0:
         raise FilterFileError(f"--clock must be a positive frequency in MHz, not {args.clock!r}")
     if args.compare:

@@ -15,7 +15,6 @@ import time
 import numpy as np
 
 from ..errors import FilterFileError
-from ..hdl import PIPELININGS
 from ..hdl.simulate import (
     SIMULATORS,
     ToolError,
@@ -27,7 +26,7 @@ from ..hdl.simulate import (
 from ..hdl.vectors import vector_set
 from ..reference import simulate_float, simulate_integer
 from ..signals import default_signal
-from .build import pipelining_of
+from .build import add_pipelining_argument, pipelining_of
 
 NAME = "verify"
 HELP = "simulate the generated design and compare every output with the bit-exact model"
@@ -54,11 +53,7 @@ def add_arguments(p):
         help=f"input samples: the test vector set, then random words (default {DEFAULT_SAMPLES})",
     )
     p.add_argument("--seed", type=int, default=1, help="seed of the random words (default 1)")
-    p.add_argument(
-        "--pipelining",
-        choices=PIPELININGS,
-        help="pipeline registers (default: the file's [hardware] pipelining, or none)",
-    )
+    add_pipelining_argument(p)
     p.add_argument("--vcd", metavar="FILE", help="write waveforms of the Amaranth simulation")
 
 
