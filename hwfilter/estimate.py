@@ -30,7 +30,7 @@ The estimate is a pass over the quantized signal-flow graph and a
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from .boards import DeviceProfile, MappingPass
 from .csd import csd_digits, nonzero_digits
@@ -63,7 +63,8 @@ class ProductMap:
     ``blocks`` weighs the mapped cells (an 18x18 is one block, a 9x9 half of one);
     ``logic_parts`` lists ``(a, b)`` widths of products or chunks left to logic;
     ``partial_adders`` the widths of the adders that sum the tiles; ``adder_levels`` how
-    many of them lie in series.
+    many of them lie in series; ``tiles`` the bit offset of each mapped cell's product
+    in the whole product.
     """
 
     blocks: float
@@ -71,6 +72,7 @@ class ProductMap:
     logic_parts: tuple = ()
     partial_adders: tuple = ()
     adder_levels: int = 0
+    tiles: tuple = ()
 
 
 def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
@@ -79,25 +81,26 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
     Follows the rules of :class:`~hwfilter.boards.MappingPass`: a product left by one pass
     (too narrow) is offered to the next; what is left after the last pass is logic.
     """
-    pending = [(a_bits, b_bits, y_bits, True, True)]
-    blocks, cells, adders, levels = 0.0, 0, [], 0
+    pending = [(a_bits, b_bits, y_bits, True, True, 0)]
+    blocks, cells, adders, levels, tiles = 0.0, 0, [], 0, []
     for p in passes:
         out = _PassResult()
-        for cell in pending:
-            depth = _map_cell(*cell, top=True, p=p, out=out)
+        for a, b, y, sa, sb, off in pending:
+            depth = _map_cell(a, b, y, sa, sb, top=True, p=p, out=out, off=off)
             levels = max(levels, depth)
         blocks += out.cells * p.blocks
         cells += out.cells
         adders += out.adders
+        tiles += out.tiles
         # a product the pass leaves becomes a plain product again; a mixed-signedness
         # one takes a bit for the unsigned operand (as Yosys's soft multiplier does)
         pending = []
-        for a, b, y, sa, sb in out.left:
+        for a, b, y, sa, sb, off in out.left:
             if sa != sb:
                 a, b = (a + 1, b) if not sa else (a, b + 1)
-            pending.append((a, b, y, True, True))
-    logic = tuple((a, b) for a, b, _, _, _ in pending)
-    return ProductMap(blocks, cells, logic, tuple(adders), levels)
+            pending.append((a, b, y, True, True, off))
+    logic = tuple((a, b) for a, b, _, _, _, _ in pending)
+    return ProductMap(blocks, cells, logic, tuple(adders), levels, tuple(sorted(tiles)))
 
 
 class _PassResult:
@@ -105,14 +108,19 @@ class _PassResult:
         self.cells = 0
         self.adders: list[int] = []
         self.left: list[tuple] = []
+        self.tiles: list[int] = []
 
 
-def _map_cell(a, b, y, sa, sb, *, top: bool, p: MappingPass, out: _PassResult) -> int:
-    """One cell through one pass (Yosys mul2dsp rules); returns the adder depth."""
+def _map_cell(
+    a, b, y, sa, sb, *, top: bool, p: MappingPass, out: _PassResult, off: int = 0
+) -> int:
+    """One cell through one pass (Yosys mul2dsp rules); returns the adder depth.
+
+    ``off`` is the cell's bit offset in the whole product."""
     if top and a < b:
         a, b, sa, sb = b, a, sb, sa
     if a < p.min_a_bits or b < p.min_b_bits or y < p.min_product_bits:
-        out.left.append((a, b, y, sa, sb))
+        out.left.append((a, b, y, sa, sb, off))
         return 0
     head = 1 if p.signed_only else 0
     if top and p.signed_only and not sa and not sb:
@@ -128,20 +136,23 @@ def _map_cell(a, b, y, sa, sb, *, top: bool, p: MappingPass, out: _PassResult) -
         last = wide - n * step
         part_y = min(y, other + part)
         depth = 0
-        for _ in range(n):
+        for i in range(n):
+            at = off + i * step
             if wide_is_a:
-                d = _map_cell(part, b, part_y, bool(head), sb, top=False, p=p, out=out)
+                d = _map_cell(part, b, part_y, bool(head), sb, top=False, p=p, out=out, off=at)
             else:
-                d = _map_cell(a, part, part_y, sa, bool(head), top=False, p=p, out=out)
+                d = _map_cell(a, part, part_y, sa, bool(head), top=False, p=p, out=out, off=at)
             depth = max(depth, d)
+        at = off + n * step
         if wide_is_a:
-            d = _map_cell(last, b, b + last, sa, sb, top=False, p=p, out=out)
+            d = _map_cell(last, b, b + last, sa, sb, top=False, p=p, out=out, off=at)
         else:
-            d = _map_cell(a, last, a + last, sa, sb, top=False, p=p, out=out)
+            d = _map_cell(a, last, a + last, sa, sb, top=False, p=p, out=out, off=at)
         depth = max(depth, d)
         out.adders.extend(max(y - (i + 1) * step, 1) for i in range(n))
         return depth + n
     out.cells += 1
+    out.tiles.append(off)
     return 0
 
 
@@ -291,7 +302,9 @@ class _Leaf:
     """One operand of a sum, in the sum's bit columns ``[lsb, msb)`` (sign-extended up).
 
     ``rows`` lists the offsets of a logic product's partial-product rows; ``dsp`` names
-    a product from one hard block (a block may add it to one more word).
+    a product from one hard block (a block may add it to one more word); ``tiled``
+    names a product from several blocks, whose ``tiles`` (offsets) join the sum as
+    operands of their own when the sum reads the product whole (see ``_tree_cost``).
     """
 
     lsb: int
@@ -299,6 +312,8 @@ class _Leaf:
     rows: tuple = (0,)
     dsp: str = ""
     negated: bool = False
+    tiled: str = ""
+    tiles: tuple = ()
 
 
 @dataclass
@@ -342,13 +357,37 @@ def _pair_tree(terms: list):
     return terms[0]
 
 
-def _dadda_levels(height: int) -> int:
-    """Full-adder levels that reduce a column of ``height`` bits to two (Dadda)."""
-    d, levels = 2, 0
-    while d < height:
-        d = d * 3 // 2
+def _compressor(lsbs: list[int], width: int) -> tuple[int, int]:
+    """Full-adder columns and levels of the compressor tree Yosys ``maccmap`` builds for
+    operands starting at columns ``lsbs`` of a ``width``-column sum (see ``_cluster``).
+
+    Words are bit masks over the columns; each level adds them three at a time.
+    """
+    top = (1 << width) - 1
+    heights = [0] * width
+    for lo in lsbs:
+        for c in range(max(lo, 0), width):
+            heights[c] += 1
+    words = [
+        sum(1 << c for c in range(width) if heights[c] > k) for k in range(max(heights, default=0))
+    ]
+    columns = levels = 0
+    while len(words) > 2:
+        nxt = []
+        i = 0
+        while i < len(words):
+            if i + 2 < len(words):
+                a, b, c = words[i : i + 3]
+                two = (a & b) | (a & c) | (b & c)
+                columns += bin(two).count("1")
+                nxt += [a | b | c, (two << 1) & top]
+                i += 3
+            else:
+                nxt.append(words[i])
+                i += 1
+        words = [w for w in nxt if w]
         levels += 1
-    return levels
+    return columns, levels
 
 
 def estimate(
@@ -579,7 +618,7 @@ class _Model:
         duplicates some logic in deeper trees: 0.1 LUT per full adder and level more
         (calibrated on Yosys 0.70 synth_ecp5 netlists of 3- to 16-term sums).
         """
-        return self.fa_luts + 0.1 * levels
+        return self.fa_luts + 0.2 * levels
 
     def carry(self, bits: int) -> float:
         return self.d.carry_entry + self.d.carry_per_bit * max(bits, 1)
@@ -590,6 +629,12 @@ class _Model:
 
     def absorbed_sum(self, name: str) -> bool:
         return name in self._absorbed_sums
+
+    def _merge_tiles(self, name: str):
+        """A product whose tiles join the sum that reads it: no adders of its own."""
+        m = self._maps[self.rep.get(name, name)]
+        self._add_luts("multipliers", -sum(m.partial_adders))
+        self.times[name] = self.d.routing + self.d.multiplier
 
     def _only_reader(self, name: str):
         users = self.g.users(name)
@@ -729,9 +774,15 @@ class _Model:
                 )
                 out.append((sign, leaf))
             else:
-                dsp = src if self.single_block(src) and self._only_reader(src) is n else ""
+                only = self._only_reader(src) is n
+                dsp = src if self.single_block(src) and only else ""
                 lo = off + min(z, sn.format.bits - 1)
-                out.append((sign, _Leaf(lo, off + sn.format.bits, dsp=dsp)))
+                m = self._maps.get(self.rep.get(src, src))
+                if only and m is not None and len(m.tiles) > 1 and not m.logic_parts:
+                    leaf = _Leaf(lo, off + sn.format.bits, tiled=src, tiles=m.tiles)
+                else:
+                    leaf = _Leaf(lo, off + sn.format.bits, dsp=dsp)
+                out.append((sign, leaf))
         return out
 
     def _sum_costs(self):
@@ -745,7 +796,9 @@ class _Model:
                 self._add_luts("multipliers", luts)
                 self.times[root.name] = t
                 continue
-            _, tree = _pair_tree(self._terms(root.name, root.format.frac))
+            sign, tree = _pair_tree(self._terms(root.name, root.format.frac))
+            if sign < 0 and isinstance(tree, _Leaf):  # a negation
+                tree = replace(tree, negated=True)
             width = root.format.bits
             extra = []
             q = self._only_reader(root.name)
@@ -784,11 +837,20 @@ class _Model:
                 child_time = max(child_time, sub_t)
                 leaves.append(_Leaf(lsb, node.msb, negated=negated))
                 return
+            if isinstance(node, _Leaf) and node.tiled and not self.adder_trees:
+                if lsb == node.lsb and width <= node.msb:
+                    # read whole and never sign-extended: Yosys alumacc merges the tile
+                    # sum of mul2dsp into this sum (it keeps it apart when the sum needs
+                    # the product's sign above its top; observed with Yosys 0.70)
+                    self._merge_tiles(node.tiled)
+                    leaves.append(_Leaf(node.lsb, node.msb, node.tiles, negated=negated))
+                    return
+                node = _Leaf(lsb, node.msb, negated=negated)  # after its tile adders
             if isinstance(node, _Leaf):
                 if lsb != node.lsb and len(node.rows) == 1:
-                    node = _Leaf(lsb, node.msb, dsp=node.dsp, negated=negated)
+                    node = replace(node, lsb=lsb, negated=negated)
                 elif negated:
-                    node = _Leaf(node.lsb, node.msb, node.rows, node.dsp, True)
+                    node = replace(node, negated=True)
                 leaves.append(node)
             elif whole and _plain(node) and not self.adder_trees:
                 gather(node)  # a plain word (no bits passed around the adder): merges
@@ -814,7 +876,7 @@ class _Model:
                 operand(b, b.lsb, True, True)
 
         if isinstance(tree, _Leaf):
-            leaves.append(tree)
+            operand(tree, tree.lsb, True, tree.negated)
         else:
             gather(tree)
         if (
@@ -836,11 +898,15 @@ class _Model:
     def _cluster(self, leaves: list, width: int, *, absorb: bool) -> tuple[float, float]:
         """LUTs and delay of one multi-operand sum (a compressor tree and a carry adder).
 
-        Counted per bit column: every operand is sign-extended to the top, so a column
-        holds one bit of every operand that starts at or below it; a full adder takes
-        three bits of a column and leaves two (a sum and a carry one column up), so a
-        column of ``h`` bits needs ``h - 2`` of them. The carry-chain adder covers the
-        columns from the lowest with two bits up.
+        Two operands are one carry-chain adder over the columns from the higher operand's
+        lowest bit up (below it one word passes through). Three or more follow Yosys
+        ``maccmap``: every operand is sign-extended to the top; the bits of each column
+        are dealt out to words (word ``k`` holds the ``k``-th bit of every column that
+        has one); full adders take the words three at a time, over every column where
+        at least two of the three have a bit (a column with two is a half adder, which
+        costs as much), and leave a sum word and a carry word one column up, until two
+        words remain for a carry-chain adder over the whole width. Constant bits (the
+        ones of subtracted words) are left out: the tool folds them.
         """
         self._absorbed_here = False
         lsbs = [leaf.lsb + r for leaf in leaves for r in leaf.rows]
@@ -860,18 +926,16 @@ class _Model:
                 bits = width - min(lsbs, default=0)
                 return float(bits), d.routing + self.carry(bits)
             return 0.0, 0.0
-        heights = [0] * width
-        for lo in lsbs:
-            for c in range(max(lo, 0), width):
-                heights[c] += 1
-        fa = sum(max(0, h - 2) for h in heights)
-        first = next((c for c, h in enumerate(heights) if h >= 2), width)
-        low = min(lsbs)
-        if any(leaf.negated and leaf.lsb == low for leaf in leaves):
-            first = low  # the low bits of a subtracted word need the carry chain
-        final = max(width - first, 0)
-        levels = _dadda_levels(max(heights, default=0))
-        luts = self.fa_cost(levels) * fa + final
+        low = max(min(lsbs), 0)
+        if len(lsbs) == 2:
+            first = max(lsbs)
+            if any(leaf.negated and leaf.lsb == min(lsbs) for leaf in leaves):
+                first = low  # the low bits of a subtracted word need the carry chain
+            final = max(width - first, 0)
+            return float(final), d.routing + self.carry(final)
+        fa_columns, levels = _compressor(lsbs, width)
+        final = max(width - low, 0)
+        luts = self.fa_cost(levels) * fa_columns + final
         t = d.routing + levels * (d.lut + d.routing) + self.carry(final)
         return luts, t
 
@@ -913,6 +977,6 @@ class _Model:
         if sat:
             # two comparisons over the rounded word and a two-level choice per output bit
             # (calibrated on Yosys 0.70 synth_ecp5 netlists, see docs/estimates.md)
-            self._add_luts("quantizers", rbits + 2 * q.format.bits)
+            self._add_luts("quantizers", rbits + q.format.bits)
             t += self.d.routing + self.carry(rbits) + self.d.routing + self.d.lut
         self.times[q.name] = t

@@ -1,0 +1,170 @@
+"""Rerun the estimate calibration of docs/estimates.md against Yosys and nextpnr.
+
+    .venv/bin/python tests/calibrate.py [--device ecp5-25k] [--no-timing] [--jobs 2]
+                                        [--sets calibration,validation,registered]
+                                        [--json results.json]
+
+Prints one markdown table row per design (estimate / tool and the ratio) and a summary
+of the bounds (blocks exact, flip-flops within 5 %, LUTs within 25 %, Fmax within 25 %).
+Tool results are cached by content (see hwfilter.synth), so a rerun after a change to the
+estimator alone takes seconds. The slow tests in test_synth.py hold the calibration set
+to the bounds; this script also covers the validation filters, which the model was not
+fitted on.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import statistics
+import sys
+from concurrent.futures import ProcessPoolExecutor
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).parent))
+
+from hwfilter.spec import make  # noqa: E402
+
+
+def validation_specs():
+    """Filters the model was not fitted on (invented test filters; the example file)."""
+    from hwfilter.spec import load
+
+    root = Path(__file__).resolve().parents[1]
+    return [
+        load(root / "examples" / "crossover_low.toml"),
+        make(
+            name="cheb6",
+            sample_rate=48000.0,
+            filter={
+                "design": {
+                    "method": "chebyshev-2",
+                    "band": "lowpass",
+                    "order": 6,
+                    "edges": [6000.0],
+                    "attenuation": 60.0,
+                }
+            },
+            fixed={
+                "coefficient_bits": 16,
+                "state_bits": 20,
+                "rounding": "floor",
+                "overflow": "wrap",
+            },
+        ),
+        make(
+            name="fir31",
+            sample_rate=48000.0,
+            filter={
+                "design": {
+                    "method": "equiripple",
+                    "band": "lowpass",
+                    "order": 30,
+                    "edges": [5000.0, 8000.0],
+                }
+            },
+            fixed={"coefficient_bits": 16, "rounding": "half-even"},
+        ),
+    ]
+
+
+def cases(sets):
+    from test_synth import calibration_specs
+
+    from hwfilter.pipeline import applicable_realizations
+
+    out = []
+    if "calibration" in sets:
+        out += [(s, "none") for s in calibration_specs()]
+    if "validation" in sets:
+        out += [(s, "none") for s in validation_specs()]
+    if "registered" in sets:
+        out += [(s, "registered-products") for s in calibration_specs()]
+    for spec, pipe in out:
+        for form, section in applicable_realizations(spec):
+            yield spec, form, section, pipe
+
+
+def run_one(args):
+    spec, form, section, pipe, device, timing = args
+    from hwfilter import synth
+    from hwfilter.boards import load_profile
+    from hwfilter.pipeline import quantized_graph
+
+    g = quantized_graph(spec, form=form, section=section)
+    try:
+        cc = synth.cross_check(
+            g, load_profile(device), pipelining=pipe, timing=timing, progress=lambda m: None
+        )
+    except synth.ToolError as e:
+        return {"filter": spec.name, "form": form, "section": section, "error": str(e)}
+    row = {"filter": spec.name, "form": form, "section": section or "", "pipelining": pipe}
+    for r in cc.rows:
+        row[r.metric] = [r.estimate, r.tool]
+    row["cells"] = cc.synth.cells
+    return row
+
+
+def _ratio(pair):
+    e, t = pair
+    return e / t if t else None
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--device", default="ecp5-25k")
+    ap.add_argument("--no-timing", action="store_true")
+    ap.add_argument("--jobs", type=int, default=2)
+    ap.add_argument("--sets", default="calibration,validation,registered")
+    ap.add_argument("--json", type=Path)
+    a = ap.parse_args(argv)
+    work = [
+        (s, f, x, p, a.device, not a.no_timing) for s, f, x, p in cases(a.sets.split(","))
+    ]
+    with ProcessPoolExecutor(a.jobs) as pool:
+        rows = list(pool.map(run_one, work))
+    rows.sort(key=lambda r: (r["filter"], r["form"], r.get("section", ""), r.get("pipelining")))
+    if a.json:
+        a.json.write_text(json.dumps(rows, indent=1))
+    print("| filter | form | section | pipelining | blocks est/tool | FF est/tool (ratio) "
+          "| LUT est/tool (ratio) | Fmax MHz est/tool (ratio) |")
+    print("|---|---|---|---|---|---|---|---|")
+    lut_ratios, fmax_ratios, n_block, n_ff, n_lut, n_fmax, n_placed = [], [], 0, 0, 0, 0, 0
+    for r in rows:
+        if "error" in r:
+            print(f"| {r['filter']} | {r['form']} | {r['section'] or ''} | error: {r['error']} |")
+            continue
+        b, f, lut = r["multiplier blocks"], r["flip-flops"], r["LUTs"]
+        fm = r.get("Fmax MHz")
+        n_block += b[0] == b[1]
+        n_ff += abs(_ratio(f) - 1) <= 0.05
+        lr = _ratio(lut)
+        lut_ratios.append(lr)
+        n_lut += abs(lr - 1) <= 0.25
+        fcell = "-"
+        if fm and fm[1]:
+            fr = _ratio(fm)
+            fmax_ratios.append(fr)
+            n_placed += 1
+            n_fmax += abs(fr - 1) <= 0.25
+            fcell = f"{fm[0]:.1f}/{fm[1]:.1f} ({fr:.2f})"
+        print(
+            f"| {r['filter']} | {r['form']} | {r['section']} | {r['pipelining']} "
+            f"| {b[0]:g}/{b[1]:g} | {f[0]:g}/{f[1]:g} ({_ratio(f):.2f}) "
+            f"| {lut[0]:.0f}/{lut[1]:.0f} ({lr:.2f}) | {fcell} |"
+        )
+    n = len(lut_ratios)
+    print()
+    print(f"designs {n}: blocks exact {n_block}, flip-flops within 5 % {n_ff}, "
+          f"LUTs within 25 % {n_lut} ({min(lut_ratios):.2f} to {max(lut_ratios):.2f}, "
+          f"median {statistics.median(lut_ratios):.2f})", end="")
+    if fmax_ratios:
+        print(f", Fmax within 25 % {n_fmax} of {n_placed} placed "
+              f"({min(fmax_ratios):.2f} to {max(fmax_ratios):.2f}, "
+              f"median {statistics.median(fmax_ratios):.2f})")
+    else:
+        print()
+
+
+if __name__ == "__main__":
+    main()
