@@ -13,12 +13,12 @@ The estimate is a pass over the quantized signal-flow graph and a
   with ``multipliers="shift-add"``, to canonical-signed-digit shift-add terms (one row
   per nonzero digit; nonzero digits minus one adders, :mod:`hwfilter.csd`).
 - **sums**: a tree of additions whose inner results have no other reader is one
-  multi-operand sum (a compressor tree of full adders and one carry-chain adder), with
-  the rounding constant of a following quantizer as one more operand; its cost is counted
-  per bit column.
-- **quantizers**: the rounding addition (merged into the sum before it, or its own carry
-  adder) and, when the word can overflow and the rule is saturate, two comparisons on
-  the bits that decide overflow and a multiplexer per output bit.
+  multi-operand sum: a compressor tree of full adders built word by word as Yosys
+  ``maccmap`` builds it, and one carry-chain adder. The tiles of a multi-block product
+  join the sum that reads the product whole.
+- **quantizers**: the rounding addition (its own carry adder) and, when the word can
+  overflow and the rule is saturate, two comparisons on the bits that decide overflow
+  and a two-way choice per output bit.
 - **registers**: states, pipeline, output and control flip-flops from the hardware plan
   (:func:`hwfilter.hdl.plan`), less registers the profile's blocks absorb.
 - **timing**: node times from the profile's delay model on the data-flow graph; the
@@ -111,9 +111,7 @@ class _PassResult:
         self.tiles: list[int] = []
 
 
-def _map_cell(
-    a, b, y, sa, sb, *, top: bool, p: MappingPass, out: _PassResult, off: int = 0
-) -> int:
+def _map_cell(a, b, y, sa, sb, *, top: bool, p: MappingPass, out: _PassResult, off: int = 0) -> int:
     """One cell through one pass (Yosys mul2dsp rules); returns the adder depth.
 
     ``off`` is the cell's bit offset in the whole product."""
@@ -304,7 +302,8 @@ class _Leaf:
     ``rows`` lists the offsets of a logic product's partial-product rows; ``dsp`` names
     a product from one hard block (a block may add it to one more word); ``tiled``
     names a product from several blocks, whose ``tiles`` (offsets) join the sum as
-    operands of their own when the sum reads the product whole (see ``_tree_cost``).
+    operands of their own when the sum reads the product whole (see ``_tree_cost``);
+    ``late`` marks a word out of a carry chain (a sum or a quantizer after one).
     """
 
     lsb: int
@@ -314,6 +313,7 @@ class _Leaf:
     negated: bool = False
     tiled: str = ""
     tiles: tuple = ()
+    late: bool = False
 
 
 @dataclass
@@ -355,6 +355,13 @@ def _pair_tree(terms: list):
             nxt.append(terms[-1])
         terms = nxt
     return terms[0]
+
+
+# Compressor operands that come out of a carry chain (a sum the tool keeps apart) arrive
+# bit by bit, and the mapper duplicates logic to keep the tree fast: the full-adder
+# columns cost (1 + LATE_OPERANDS x the share of such operands) times more (fitted on
+# the Yosys 0.70 synth_ecp5 netlists of the calibration filters, see docs/estimates.md)
+LATE_OPERANDS = 0.9
 
 
 def _compressor(lsbs: list[int], width: int) -> tuple[int, int]:
@@ -538,6 +545,21 @@ def estimate(
     )
 
 
+def _unused(graph: Graph) -> set[str]:
+    """Gains of zero (constant words) and the nodes only they read, transitively: the
+    synthesis tool removes their logic."""
+    dead = {n.name for n in graph.of_kind("gain") if n.value == 0}
+    changed = True
+    while changed:
+        changed = False
+        for n in graph.nodes:
+            users = graph.users(n.name)
+            if n.name not in dead and users and all(u.name in dead for u in users):
+                dead.add(n.name)
+                changed = True
+    return dead
+
+
 def _reg_name(hp, node: str) -> str:
     """The flip-flop model's name of a node's register (a delay, or a product register)."""
     for r in hp.pipeline_registers:
@@ -603,7 +625,6 @@ class _Model:
         self._merged_adds: dict[str, str] = {}
         self._absorbed_here = False
         self._absorbed_sums: set[str] = set()
-        self._merged_rounding: set[str] = set()
         self.ranges = node_ranges(graph)
         self.rep = _representatives(graph)
         from .hdl.plan import constant_low_bits
@@ -612,11 +633,12 @@ class _Model:
 
     # -- helpers ------------------------------------------------------------------------
     def fa_cost(self, levels: int) -> float:
-        """LUTs per full adder of a compressor tree ``levels`` deep.
+        """LUTs per full-adder column of a compressor tree ``levels`` deep.
 
         A full adder is two LUT4 (sum and carry) or one dual-output LUT6; the mapper
-        duplicates some logic in deeper trees: 0.1 LUT per full adder and level more
-        (calibrated on Yosys 0.70 synth_ecp5 netlists of 3- to 16-term sums).
+        duplicates logic in deeper trees: 0.2 LUT per column and level more (fitted on
+        the Yosys 0.70 synth_ecp5 netlists of the calibration filters, see
+        docs/estimates.md; sums alone with inputs from registers need about 0.1).
         """
         return self.fa_luts + 0.2 * levels
 
@@ -649,12 +671,15 @@ class _Model:
         g = self.g
         for n in g.nodes:
             self.times[n.name] = 0.0
+        self.dead = _unused(g)
         for n in g.of_kind("gain"):
-            self._gain(n)
+            if n.name not in self.dead:
+                self._gain(n)
         self._group_sums()
         self._sum_costs()
         for n in g.of_kind("quantize"):
-            self._quantize(n)
+            if n.name not in self.dead:
+                self._quantize(n)
         for name, r in self.rep.items():  # merged copies take their original's time
             self.times[name] = self.times[r]
 
@@ -734,7 +759,9 @@ class _Model:
         roots = [
             n
             for n in g.of_kind("add")
-            if n.name not in self._merged_adds and self.rep[n.name] == n.name
+            if n.name not in self._merged_adds
+            and self.rep[n.name] == n.name
+            and n.name not in self.dead
         ]
         # logic products whose reader is not a sum are sums of their own rows
         for n in g.of_kind("gain"):
@@ -755,10 +782,15 @@ class _Model:
         out = []
         for sign, src in zip(n.signs, n.inputs):
             sn = g[src]
+            if src in self.dead:
+                continue  # a constant zero: no operand
             off = frac - sn.format.frac
             z = self.zeros[src]  # known-zero low bits enter as wiring, not as adder inputs
             if sn.kind == "add" and self._merged_adds.get(src) == name:
-                sub_sign, sub = _pair_tree(self._terms(src, frac))
+                sub_terms = self._terms(src, frac)
+                if not sub_terms:
+                    continue
+                sub_sign, sub = _pair_tree(sub_terms)
                 out.append((sign * sub_sign, sub))
             elif sn.kind == "gain" and self._in_logic(src) and self._only_reader(src) is n:
                 rows = self._rows_of_gain(sn)
@@ -781,7 +813,8 @@ class _Model:
                 if only and m is not None and len(m.tiles) > 1 and not m.logic_parts:
                     leaf = _Leaf(lo, off + sn.format.bits, tiled=src, tiles=m.tiles)
                 else:
-                    leaf = _Leaf(lo, off + sn.format.bits, dsp=dsp)
+                    late = sn.kind in ("add", "quantize")  # out of a carry chain
+                    leaf = _Leaf(lo, off + sn.format.bits, dsp=dsp, late=late)
                 out.append((sign, leaf))
         return out
 
@@ -796,7 +829,10 @@ class _Model:
                 self._add_luts("multipliers", luts)
                 self.times[root.name] = t
                 continue
-            sign, tree = _pair_tree(self._terms(root.name, root.format.frac))
+            terms = self._terms(root.name, root.format.frac)
+            if not terms:
+                continue  # a sum of constant zeros
+            sign, tree = _pair_tree(terms)
             if sign < 0 and isinstance(tree, _Leaf):  # a negation
                 tree = replace(tree, negated=True)
             width = root.format.bits
@@ -858,7 +894,7 @@ class _Model:
                 sub_luts, sub_t = self._tree_cost(node, min(node.msb, width), [], "")
                 luts += sub_luts
                 child_time = max(child_time, sub_t)
-                leaves.append(_Leaf(lsb, node.msb, negated=negated))
+                leaves.append(_Leaf(lsb, node.msb, negated=negated, late=True))
 
         def gather(node):
             a, b = node.a, node.b
@@ -935,7 +971,8 @@ class _Model:
             return float(final), d.routing + self.carry(final)
         fa_columns, levels = _compressor(lsbs, width)
         final = max(width - low, 0)
-        luts = self.fa_cost(levels) * fa_columns + final
+        late = sum(len(leaf.rows) for leaf in leaves if leaf.late) / len(lsbs)
+        luts = self.fa_cost(levels) * fa_columns * (1 + LATE_OPERANDS * late) + final
         t = d.routing + levels * (d.lut + d.routing) + self.carry(final)
         return luts, t
 
@@ -963,7 +1000,7 @@ class _Model:
         t = 0.0
         rlo, rhi = rounded_range(self.g, q, self.ranges)
         rbits = bits_for_range(rlo, rhi)
-        if k > 0 and q.rounding != "floor" and q.name not in self._merged_rounding:
+        if k > 0 and q.rounding != "floor":
             if q.rounding == "half-up":
                 # an incrementer on the bits from k - 1 up
                 width = (rbits if sat else q.format.bits) + 1
@@ -975,8 +1012,9 @@ class _Model:
             self._add_luts("quantizers", width)
             t += self.d.routing + self.carry(width)
         if sat:
-            # two comparisons over the rounded word and a two-level choice per output bit
-            # (calibrated on Yosys 0.70 synth_ecp5 netlists, see docs/estimates.md)
+            # two comparisons over the rounded word (one carry chain's worth) and one LUT
+            # per output bit for the choice between the word and the two limits
+            # (measured on Yosys 0.70 synth_ecp5 netlists, see docs/estimates.md)
             self._add_luts("quantizers", rbits + q.format.bits)
             t += self.d.routing + self.carry(rbits) + self.d.routing + self.d.lut
         self.times[q.name] = t

@@ -118,16 +118,16 @@ def main(argv=None):
     ap.add_argument("--sets", default="calibration,validation,registered")
     ap.add_argument("--json", type=Path)
     a = ap.parse_args(argv)
-    work = [
-        (s, f, x, p, a.device, not a.no_timing) for s, f, x, p in cases(a.sets.split(","))
-    ]
+    work = [(s, f, x, p, a.device, not a.no_timing) for s, f, x, p in cases(a.sets.split(","))]
     with ProcessPoolExecutor(a.jobs) as pool:
         rows = list(pool.map(run_one, work))
     rows.sort(key=lambda r: (r["filter"], r["form"], r.get("section", ""), r.get("pipelining")))
     if a.json:
         a.json.write_text(json.dumps(rows, indent=1))
-    print("| filter | form | section | pipelining | blocks est/tool | FF est/tool (ratio) "
-          "| LUT est/tool (ratio) | Fmax MHz est/tool (ratio) |")
+    print(
+        "| filter | form | section | pipelining | blocks est/tool | FF est/tool (ratio) "
+        "| LUT est/tool (ratio) | Fmax MHz est/tool (ratio) |"
+    )
     print("|---|---|---|---|---|---|---|---|")
     lut_ratios, fmax_ratios, n_block, n_ff, n_lut, n_fmax, n_placed = [], [], 0, 0, 0, 0, 0
     for r in rows:
@@ -155,13 +155,18 @@ def main(argv=None):
         )
     n = len(lut_ratios)
     print()
-    print(f"designs {n}: blocks exact {n_block}, flip-flops within 5 % {n_ff}, "
-          f"LUTs within 25 % {n_lut} ({min(lut_ratios):.2f} to {max(lut_ratios):.2f}, "
-          f"median {statistics.median(lut_ratios):.2f})", end="")
+    print(
+        f"designs {n}: blocks exact {n_block}, flip-flops within 5 % {n_ff}, "
+        f"LUTs within 25 % {n_lut} ({min(lut_ratios):.2f} to {max(lut_ratios):.2f}, "
+        f"median {statistics.median(lut_ratios):.2f})",
+        end="",
+    )
     if fmax_ratios:
-        print(f", Fmax within 25 % {n_fmax} of {n_placed} placed "
-              f"({min(fmax_ratios):.2f} to {max(fmax_ratios):.2f}, "
-              f"median {statistics.median(fmax_ratios):.2f})")
+        print(
+            f", Fmax within 25 % {n_fmax} of {n_placed} placed "
+            f"({min(fmax_ratios):.2f} to {max(fmax_ratios):.2f}, "
+            f"median {statistics.median(fmax_ratios):.2f})"
+        )
     else:
         print()
 

@@ -129,7 +129,7 @@ def test_strongly_connected_components_against_brute_force(rng):
     # components independently of Tarjan's algorithm
     from hwfilter.graph import strongly_connected_components
 
-    for trial in range(20):
+    for _trial in range(20):
         n = int(rng.integers(1, 12))
         adj = rng.random((n, n)) < 0.2
         succ = {i: [j for j in range(n) if adj[i, j]] for i in range(n)}
