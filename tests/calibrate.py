@@ -2,7 +2,7 @@
 
     .venv/bin/python tests/calibrate.py [--device ecp5-25k] [--no-timing] [--jobs 2]
                                         [--sets calibration,validation,registered,holdout]
-                                        [--json results.json]
+                                        [--json results.json] [--only lp4,fir15]
 
 Prints one markdown table row per design (estimate / tool and the ratio) and a summary
 of the bounds (blocks exact, flip-flops within 5 %, LUTs within 25 %, Fmax within 25 %).
@@ -103,13 +103,17 @@ def run_one(args):
     from hwfilter.pipeline import quantized_graph
 
     g = quantized_graph(spec, form=form, section=section)
-    try:
-        cc = synth.cross_check(
-            g, load_profile(device), pipelining=pipe, timing=timing, progress=lambda m: None
-        )
-    except synth.ToolError as e:
-        return {"filter": spec.name, "form": form, "section": section, "error": str(e)}
     row = {"filter": spec.name, "form": form, "section": section or "", "pipelining": pipe}
+    profile = load_profile(device)
+    quiet = {"pipelining": pipe, "progress": lambda m: None}
+    try:
+        cc = synth.cross_check(g, profile, timing=timing, **quiet)
+    except synth.ToolError as e:
+        if not timing:
+            return {**row, "error": str(e)}
+        # e.g. more blocks than the device has: nextpnr cannot place it
+        cc = synth.cross_check(g, profile, timing=False, **quiet)
+        row["not placed"] = str(e).splitlines()[-2 if len(str(e).splitlines()) > 1 else -1]
     for r in cc.rows:
         row[r.metric] = [r.estimate, r.tool]
     row["cells"] = cc.synth.cells
@@ -128,8 +132,14 @@ def main(argv=None):
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--sets", default="calibration,validation,registered")
     ap.add_argument("--json", type=Path)
+    ap.add_argument("--only", help="filter names to run, comma-separated (default: all)")
     a = ap.parse_args(argv)
-    work = [(s, f, x, p, a.device, not a.no_timing) for s, f, x, p in cases(a.sets.split(","))]
+    only = set(a.only.split(",")) if a.only else None
+    work = [
+        (s, f, x, p, a.device, not a.no_timing)
+        for s, f, x, p in cases(a.sets.split(","))
+        if only is None or s.name in only
+    ]
     with ProcessPoolExecutor(a.jobs) as pool:
         rows = list(pool.map(run_one, work))
     rows.sort(key=lambda r: (r["filter"], r["form"], r.get("section", ""), r.get("pipelining")))
@@ -152,7 +162,7 @@ def main(argv=None):
         lr = _ratio(lut)
         lut_ratios.append(lr)
         n_lut += abs(lr - 1) <= 0.25
-        fcell = "-"
+        fcell = "not placed" if "not placed" in r else "-"
         if fm and fm[1]:
             fr = _ratio(fm)
             fmax_ratios.append(fr)

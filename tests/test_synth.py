@@ -212,8 +212,13 @@ def _calibration_cases():
 # realizations whose LUT estimate misses the 25 % bound at the last calibration (measured
 # ratios in docs/estimates.md); the test then expects the miss, and fails if it passes
 LUT_MISSES = {
-    ("lp4", "direct-form-1", None),  # 0.60: the tool maps its 7-operand sum to wide LUTs
-    ("fir15", "fir-symmetric", None),  # 1.25 (just over): pre-adders cheaper than counted
+    # 0.62: the mapper packs this 7-operand sum into wide functions (1185 LUT4 and 824
+    # wide-function muxes); with any one of four equal products made an input port it
+    # takes 1050 LUTs, the estimate 926
+    ("lp4", "direct-form-1", None),
+    # 0.73: compressor trees fed by carry chains map to about 4.8 LUT4 per full-adder
+    # column here, against 2.5 to 3.5 elsewhere
+    ("fir15", "fir-direct", None),
 }
 
 
