@@ -145,18 +145,22 @@ def main(argv=None):
     rows.sort(key=lambda r: (r["filter"], r["form"], r.get("section", ""), r.get("pipelining")))
     if a.json:
         a.json.write_text(json.dumps(rows, indent=1))
+    extra = any("LUTs (no DSP)" in r for r in rows)
     print(
         "| filter | form | section | pipelining | blocks est/tool | FF est/tool (ratio) "
         "| LUT est/tool (ratio) | Fmax MHz est/tool (ratio) |"
+        + (" LUT no-DSP est/tool (ratio) |" if extra else "")
     )
-    print("|---|---|---|---|---|---|---|---|")
+    print("|---|---|---|---|---|---|---|---|" + ("---|" if extra else ""))
     lut_ratios, fmax_ratios, n_block, n_ff, n_lut, n_fmax, n_placed = [], [], 0, 0, 0, 0, 0
     for r in rows:
         if "error" in r:
             print(f"| {r['filter']} | {r['form']} | {r['section'] or ''} | error: {r['error']} |")
             continue
         b, f, lut = r["multiplier blocks"], r["flip-flops"], r["LUTs"]
-        fm = r.get("Fmax MHz")
+        # iCE40: timing on the netlist without DSP mapping (see hwfilter.synth)
+        fm = r.get("Fmax MHz") or r.get("Fmax MHz (no DSP)")
+        nodsp = r.get("LUTs (no DSP)")
         n_block += b[0] == b[1]
         n_ff += abs(_ratio(f) - 1) <= 0.05
         lr = _ratio(lut)
@@ -173,6 +177,7 @@ def main(argv=None):
             f"| {r['filter']} | {r['form']} | {r['section']} | {r['pipelining']} "
             f"| {b[0]:g}/{b[1]:g} | {f[0]:g}/{f[1]:g} ({_ratio(f):.2f}) "
             f"| {lut[0]:.0f}/{lut[1]:.0f} ({lr:.2f}) | {fcell} |"
+            + (f" {nodsp[0]:.0f}/{nodsp[1]:.0f} ({_ratio(nodsp):.2f}) |" if nodsp else "")
         )
     n = len(lut_ratios)
     print()
