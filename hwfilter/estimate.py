@@ -30,6 +30,7 @@ The estimate is a pass over the quantized signal-flow graph and a
 
 from __future__ import annotations
 
+from collections import Counter
 from dataclasses import dataclass, field, replace
 
 from .boards import DeviceProfile, MappingPass
@@ -359,8 +360,8 @@ def _pair_tree(terms: list):
 
 # Compressor operands that come out of a carry chain (a sum the tool keeps apart) arrive
 # bit by bit, and the mapper duplicates logic to keep the tree fast: the full-adder
-# columns cost (1 + LATE_OPERANDS x the share of such operands) times more (fitted on
-# the Yosys 0.70 synth_ecp5 netlists of the calibration filters, see docs/estimates.md)
+# columns cost (1 + LATE_OPERANDS x the share of such operands) times more (chosen by a
+# grid search over the 87 Yosys 0.70 synth_ecp5 calibration designs, docs/estimates.md)
 LATE_OPERANDS = 0.5
 
 
@@ -630,6 +631,7 @@ class _Model:
         self._absorbed_sums: set[str] = set()
         self.ranges = node_ranges(graph)
         self.rep = _representatives(graph)
+        self._copies = Counter(self.rep.values())
         from .hdl.plan import constant_low_bits
 
         self.zeros = constant_low_bits(graph)
@@ -812,8 +814,10 @@ class _Model:
                 only = self._only_reader(src) is n
                 dsp = src if self.single_block(src) and only else ""
                 lo = off + min(z, sn.format.bits - 1)
-                m = self._maps.get(self.rep.get(src, src))
-                if only and m is not None and len(m.tiles) > 1 and not m.logic_parts:
+                r = self.rep.get(src, src)
+                m = self._maps.get(r)
+                alone = self._copies[r] == 1  # no identical product merged with it
+                if only and alone and m is not None and len(m.tiles) > 1 and not m.logic_parts:
                     leaf = _Leaf(lo, off + sn.format.bits, tiled=src, tiles=m.tiles)
                 else:
                     late = sn.kind in ("add", "quantize")  # out of a carry chain

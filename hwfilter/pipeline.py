@@ -164,7 +164,7 @@ def applicable_realizations(spec: FilterSpec) -> list[tuple[str, str | None]]:
 
     if spec.is_fir:
         out = [("fir-direct", None), ("fir-transposed", None)]
-        taps = np.trim_zeros(spec.b, "b")
+        taps = np.trim_zeros(spec.b)  # leading zeros are a pure delay
         _, asym, _ = symmetry(taps)
         if asym <= 1e-12 * float(np.max(np.abs(taps))):
             out.append(("fir-symmetric", None))

@@ -614,7 +614,10 @@ def from_dict(data: dict, source: str = "<python>") -> FilterSpec:
     if realization.form == "fir-symmetric":
         from .realize import symmetry
 
-        sign, asym, k = symmetry(np.trim_zeros(b, "b"))
+        # leading zeros are a pure delay; the symmetry is that of the taps between
+        lead = len(b) - len(np.trim_zeros(b, "f"))
+        sign, asym, k = symmetry(np.trim_zeros(b))
+        k += lead
         scale = float(np.max(np.abs(b)))
         if asym > 1e-12 * max(scale, 1e-300):
             raise FilterFileError(

@@ -68,6 +68,33 @@ def test_power_of_two_gains_are_free():
     assert e.lut_detail["multipliers"] == 0
 
 
+def test_zero_taps_cost_nothing():
+    # common practice: a zero coefficient is no hardware (Yosys removes the product and
+    # the operand; in a symmetric FIR also the pre-adder that only it reads)
+    with_zero = estimate(quantized("fir-direct", b=[0.3, 0.0, -0.2], a=[1.0]), ECP5)
+    without = estimate(quantized("fir-direct", b=[0.3, -0.2], a=[1.0]), ECP5)
+    assert with_zero.luts == without.luts and with_zero.multipliers == without.multipliers
+    sym = estimate(quantized("fir-symmetric", b=[0.0, 0.3, 0.5, 0.3, 0.0], a=[1.0]), ECP5)
+    inner = estimate(quantized("fir-symmetric", b=[0.3, 0.5, 0.3], a=[1.0]), ECP5)
+    assert sym.luts == inner.luts
+
+
+def test_tile_products_read_whole_join_the_sum():
+    # a 30-bit state times an 18-bit coefficient takes two 18x18 tiles (mul2dsp rules);
+    # with wrap the state sum keeps no more bits than the product, so the tile sum
+    # merges into it (probed with Yosys 0.70: test_synth.py::test_tile_sum_merge_rule)
+    from dataclasses import replace as rep
+
+    g = quantized("transposed-direct-form-2", state=30)
+    wrapped = g.replace_nodes(
+        [rep(n, overflow="wrap") for n in g.of_kind("quantize") if n.name != "y_out"]
+    )
+    e = estimate(wrapped, ECP5)
+    tiled = [p for p in e.products if p.blocks == 2]
+    assert tiled, "the test needs multi-block products"
+    assert e.lut_detail["multipliers"] < estimate(g, ECP5).lut_detail["multipliers"]
+
+
 ECP5_PASS = MappingPass(18, 18, 2, 2, 0, 18, 18, False, 1.0, "test")
 
 

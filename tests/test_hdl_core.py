@@ -178,3 +178,16 @@ def test_ports_follow_stream_conventions():
     assert core.o.payload.shape().signed and len(core.o.payload) == g.output.format.bits
     assert core.o.signature.always_ready  # the filter does not take back-pressure
     Fragment.get(core, None)  # elaborates
+
+
+def test_bit_exact_symmetric_fir_after_leading_zeros():
+    # a symmetric FIR behind a pure delay: folded after the leading zeros, bit-exact
+    # against the integer reference model
+    b = np.concatenate([[0.0, 0.0], 1.6 * signal.firwin(7, 0.3)])
+    g = realize("z", b=b, a=[1.0], form="fir-symmetric")
+    g = quantize_coefficients(g, 12)
+    fi, fo = Format(12, 11), Format(10, 9)
+    fmts = default_quantizer_formats(g, input_format=fi, output_format=fo, state_bits=11)
+    g = set_quantizers(g, fmts, input_format=fi, rounding="half-even", overflow="saturate")
+    x = np.random.default_rng(5).integers(-2048, 2048, 300)
+    check(g, "none", x)

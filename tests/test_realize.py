@@ -59,6 +59,27 @@ def test_antisymmetric_fir_folds(rng):
     np.testing.assert_allclose(simulate_float(g, x), signal.lfilter(h, 1.0, x), atol=1e-12)
 
 
+@pytest.mark.parametrize(
+    "h",
+    [
+        [0.0, 0.3, 0.5, 0.3, 0.0],  # symmetric with a zero at each end
+        [0.0, 0.0, 0.2, -0.4, 0.4, -0.2],  # leading zeros (a pure delay), antisymmetric
+        [0.0, 0.1, 0.0, -0.1],
+    ],
+)
+def test_symmetric_fir_after_leading_zeros(h, rng):
+    # leading zeros are a pure delay; the taps after them fold (scipy.signal.lfilter as
+    # the outside reference)
+    g = realize("z", b=h, a=[1.0], form="fir-symmetric")
+    x = rng.standard_normal(300)
+    np.testing.assert_allclose(simulate_float(g, x), signal.lfilter(h, 1.0, x), atol=1e-12)
+
+
+def test_symmetric_fir_rejects_asymmetric_taps():
+    with pytest.raises(ValueError, match="largest asymmetry 0.1 at tap 1"):
+        realize("z", b=[0.0, 0.2, 0.1, 0.3], a=[1.0], form="fir-symmetric")
+
+
 def test_delay_counts():
     # common practice: the direct form and the cascade of the same order use the same
     # number of delays (the order); direct form I of a biquad has 4, direct form II 2

@@ -74,6 +74,10 @@ def err(text: str) -> str:
             "largest asymmetry 2 at tap 0",
         ),
         (
+            '[filter]\ntaps = [0.0, 1.0, 2.0, 3.0]\n[realization]\nform = "fir-symmetric"\n',
+            "largest asymmetry 2 at tap 1",
+        ),
+        (
             '[filter]\ndesign = { method = "elliptic", band = "lowpass", order = 4, '
             "edges = [100.0], ripple = 1.0 }\n",
             "filter.design.attenuation: stopband attenuation (dB) must be given",
@@ -153,6 +157,13 @@ def test_defaults_and_python_api():
     assert spec.realization.section == "direct-form-2"
     same = from_dict({"name": "demo", "filter": {"taps": [0.25, 0.5, 0.25]}})
     assert same.is_fir and same.realization.form == "cascade"
+    # leading zeros are a pure delay: the taps after them are symmetric, and the form
+    # is offered and accepted
+    delayed = make(name="d", filter={"taps": [0.0, 0.25, 0.5, 0.25]})
+    from hwfilter.pipeline import applicable_realizations
+
+    assert ("fir-symmetric", None) in applicable_realizations(delayed)
+    make(name="d", filter={"taps": [0.0, 0.25, 0.5, 0.25]}, realization={"form": "fir-symmetric"})
 
 
 def test_pipelining_choices_match_the_hardware():

@@ -65,18 +65,29 @@ def add_fir(bld: Builder, form: str, taps, src: str) -> str:
             bld.connect(sdel[k - 1], nxt)
         return y
     if form == "fir-symmetric":
-        sign, _, _ = symmetry(h)
+        # leading zeros are a pure delay: the symmetry is that of the taps after them
+        lead = n - len(np.trim_zeros(np.asarray(h), "f"))
+        core = h[lead:]
+        m = len(core)
+        sign, asym, at = symmetry(core) if m else (1, 0.0, 0)
+        if asym > 1e-12 * max(max(abs(v) for v in core) if m else 0.0, 1e-300):
+            raise ValueError(
+                f"fir-symmetric needs symmetric or antisymmetric taps; largest asymmetry "
+                f"{asym:.6g} at tap {lead + at}"
+            )
         line = [src]
         for k in range(1, n):
             line.append(bld.delay(f"x{k}", line[-1]))
         products = []
-        for k in range(n // 2):
-            if h[k] == 0.0:
+        for k in range(m // 2):
+            if core[k] == 0.0:
                 continue
-            pre = bld.add(f"p{k}", [(1, line[k]), (sign, line[n - 1 - k])])
-            products.append((1, bld.gain(f"h{k}", pre, h[k], "h")))
-        if n % 2 == 1 and sign == 1 and h[n // 2] != 0.0:
-            products.append((1, bld.gain(f"h{n // 2}", line[n // 2], h[n // 2], "h")))
+            i, j = lead + k, lead + m - 1 - k
+            pre = bld.add(f"p{i}", [(1, line[i]), (sign, line[j])])
+            products.append((1, bld.gain(f"h{i}", pre, core[k], "h")))
+        c = lead + m // 2
+        if m % 2 == 1 and sign == 1 and h[c] != 0.0:
+            products.append((1, bld.gain(f"h{c}", line[c], h[c], "h")))
         if not products:
             raise ValueError("FIR taps are all zero")
         return bld.add("acc", products) if len(products) > 1 else products[0][1]
