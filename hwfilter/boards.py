@@ -155,6 +155,9 @@ class DeviceProfile:
     synthesis: SynthesisFlow
     default_clock_mhz: float | None = None
     sources: dict = field(default_factory=dict, repr=False, compare=False)
+    # how close the estimates came to the synthesis tools on this profile, as measured
+    # (``"luts"``, ``"fmax"``: text with its source in ``sources["accuracy.<key>"]``)
+    accuracy: dict = field(default_factory=dict, compare=False)
 
     def source(self, key: str) -> str:
         """The source text of field ``key`` (for example ``"delay.lut"``)."""
@@ -174,6 +177,7 @@ class DeviceProfile:
             "block_rams": self.block_rams,
             "multiplier_bits": [m.a_bits, m.b_bits],
             "default_clock_mhz": self.default_clock_mhz,
+            "accuracy": dict(self.accuracy),
             "delay_ns": {
                 "lut": d.lut,
                 "carry_entry": d.carry_entry,
@@ -247,7 +251,9 @@ _TOP_KEYS = (
     "logic",
     "delay",
     "synthesis",
+    "accuracy",
 )
+_ACCURACY_KEYS = ("luts", "fmax")
 _COUNT_KEYS = ("luts", "lut_inputs", "flip_flops", "multipliers", "block_rams", "block_ram_bits")
 _MULT_KEYS = (
     "a_bits",
@@ -510,6 +516,16 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         dsp_cells=s.weights("dsp_cells"),
     )
     passes = _passes(src, s, block)
+    accuracy = {}
+    if "accuracy" in data:
+        acc = top.sub("accuracy", _ACCURACY_KEYS)
+        for key in _ACCURACY_KEYS:
+            v = acc.sourced(key, optional=True)
+            if v is None:
+                continue
+            if not isinstance(v, str) or not v.strip():
+                raise acc.error(key, f"value must be a non-empty text, not {v!r}")
+            accuracy[key] = v
     if not flow.yosys.startswith("synth_"):
         raise s.error("yosys", f"must be a Yosys synth_* command, not {flow.yosys!r}")
     if not flow.lut_cells or not flow.ff_cells:
@@ -533,4 +549,5 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         synthesis=flow,
         default_clock_mhz=clock,
         sources=sources,
+        accuracy=accuracy,
     )

@@ -463,6 +463,9 @@ def run_job(
             "generator": f"hwfilter {__version__}",
             "realization": a["realization"],
             "device": profile.name,
+            "estimate_accuracy": {
+                k: f"{v} ({profile.source('accuracy.' + k)})" for k, v in profile.accuracy.items()
+            },
             "pipelining": pipe,
             "caution": CAUTION,
             "verdicts": {

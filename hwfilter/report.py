@@ -153,6 +153,14 @@ def render_html(results: dict, images: dict[str, bytes]) -> str:
     if r.get("resources"):
         parts.append("<h2>Resources and timing (estimate)</h2>")
         parts.append(f"<p>Device profile: {html.escape(str(r.get('device', '')))}.</p>")
+        acc = r.get("estimate_accuracy") or {}
+        if acc:
+            names = {"luts": "LUTs", "fmax": "Fmax"}
+            parts.append(
+                "<p>How close these estimates came to the synthesis tools on this profile:</p><ul>"
+                + "".join(f"<li>{names.get(k, k)}: {html.escape(v)}</li>" for k, v in acc.items())
+                + "</ul>"
+            )
         parts.append(
             table_html(
                 r["resources"],

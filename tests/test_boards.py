@@ -103,6 +103,18 @@ def test_more_device_facts():
     assert load_profile("ecp5-25k").carry_bits_per_cell == 2
 
 
+@pytest.mark.parametrize("name", profile_names())
+def test_profiles_state_their_measured_accuracy(name):
+    # every shipped profile says how close its estimates came to the tools, with a source
+    # (the calibration tables in docs/estimates.md)
+    p = load_profile(name)
+    assert set(p.accuracy) == {"luts", "fmax"}
+    for key in p.accuracy:
+        assert "docs/estimates.md" in p.source(f"accuracy.{key}")
+    if p.family != "ecp5":
+        assert "not" in p.accuracy["luts"] or "not" in p.accuracy["fmax"]
+
+
 def test_load_by_path(tmp_path):
     text = (BOARDS_DIR / "ecp5-25k.toml").read_text()
     f = tmp_path / "mine.toml"
@@ -162,6 +174,13 @@ def _broken(tmp_path, old: str, new: str) -> str:
             "must be a non-negative integer, not -2",
         ),
         ('nextpnr = "ecp5"', 'nextpnr = "vpr"', "synthesis.nextpnr", "must be ecp5, ice40"),
+        (
+            'luts = { value = "80 of 87',
+            'luts = { value = 80, source = "x" } # "80 of 87',
+            "accuracy.luts",
+            "value must be a non-empty text, not 80",
+        ),
+        ("\nfmax = { value = ", "\nfmx = { value = ", "accuracy.fmx", "did you mean 'fmax'?"),
     ],
 )
 def test_bad_profile_names_file_field_problem(tmp_path, old, new, field, problem):

@@ -101,7 +101,11 @@ def test_report_has_every_plot_and_table(builds, name):
     assert "Resources and timing (estimate)" in page.headings
     assert all(rows > 0 for rows in page.tables)
     assert "Estimates are not timing or safety sign-off" in (out / "report.html").read_text()
+    assert (
+        "How close these estimates came to the synthesis tools" in (out / "report.html").read_text()
+    )
     data = json.loads((out / "report.json").read_text())
+    assert set(data["estimate_accuracy"]) == {"luts", "fmax"}
     assert data["verdicts"]["bit_exact"] is True
     assert len(data["resources"]) >= 3  # the realizations compared
     # predicted vs measured SQNR agree on a busy input (Jackson / O&S white-noise model,

@@ -24,7 +24,16 @@ from ..pipeline import applicable_realizations, quantized_graph
 from ..spec import load
 from .build import add_pipelining_argument, pipelining_of
 
-__all__ = ["NAME", "HELP", "add_arguments", "run", "compare", "render_estimate", "render_table"]
+__all__ = [
+    "NAME",
+    "HELP",
+    "accuracy_lines",
+    "add_arguments",
+    "run",
+    "compare",
+    "render_estimate",
+    "render_table",
+]
 
 NAME = "estimate"
 HELP = "resources and timing on a device profile; --compare all realizations; --synth check"
@@ -186,7 +195,18 @@ def render_table(rows: list[dict], profile) -> str:
     else:
         notes.append("SQNR column left out: the noise analysis (hwfilter.noise) is not there")
     lines += notes
+    lines += accuracy_lines(profile, "")
     return "\n".join(lines)
+
+
+def accuracy_lines(profile, indent: str = "  ") -> list[str]:
+    """How close this profile's estimates came to the synthesis tools (its ``[accuracy]``
+    table), one line per figure."""
+    names = {"luts": "LUTs", "fmax": "Fmax"}
+    return [
+        f"{indent}accuracy of {names[k]} on {profile.name}: {v} ({profile.source('accuracy.' + k)})"
+        for k, v in profile.accuracy.items()
+    ]
 
 
 def render_estimate(e, profile) -> str:
@@ -229,6 +249,7 @@ def render_estimate(e, profile) -> str:
     lines.append("  fits the device   " + ("yes" if e.fits else "no: " + "; ".join(e.fit_problems)))
     for n in e.notes:
         lines.append(f"  note: {n}")
+    lines += accuracy_lines(profile)
     return "\n".join(lines)
 
 
