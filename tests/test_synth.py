@@ -49,6 +49,29 @@ def test_count_cells_weighs_by_profile():
     assert synth.count_cells(cells, gowin) == (8.0, 5, 2.0)  # a 9x9 is half an 18x18
 
 
+def test_constant_luts_are_not_counted():
+    # a LUT whose every input is a constant computes a constant: nextpnr's packer removes
+    # it (common practice; seen as halves of PFUMX pairs in Yosys 0.70 synth_ecp5 output)
+    ecp5 = load_profile("ecp5-25k")
+    lut = {"port_directions": {"A": "input", "B": "input", "Z": "output"}}
+    netlist = {
+        "modules": {
+            "top": {
+                "cells": {
+                    "a": {**lut, "type": "LUT4", "connections": {"A": ["0"], "B": ["1"], "Z": [5]}},
+                    "b": {**lut, "type": "LUT4", "connections": {"A": [3], "B": ["0"], "Z": [6]}},
+                    "c": {
+                        **lut,
+                        "type": "CCU2C",
+                        "connections": {"A": ["0"], "B": ["0"], "Z": [7]},
+                    },
+                }
+            }
+        }
+    }
+    assert synth._constant_luts(netlist, "top", ecp5) == {"LUT4": 1}
+
+
 def test_timing_wrapper_compiles(tmp_path):
     iverilog = require_tool("iverilog")
     g = quantized("direct-form-2", [0.3, -0.27, 0.21], [1.0, -1.1, 0.45])
