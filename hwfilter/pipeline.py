@@ -18,7 +18,7 @@ from .errors import FilterFileError, QuantizationWarning
 from .fixed import Format
 from .formats import default_quantizer_formats, quantize_coefficients, set_quantizers
 from .graph import Graph, GraphError
-from .realize import FIR_FORMS, SECTION_FORMS, realize, symmetry
+from .realize import FIR_FORMS, SECTION_FORMS, folding, realize
 from .spec import FilterSpec
 
 __all__ = ["float_graph", "quantized_graph", "applicable_realizations", "quantizer_formats"]
@@ -160,13 +160,10 @@ def applicable_realizations(spec: FilterSpec) -> list[tuple[str, str | None]]:
     only when the poles are distinct). FIR: the FIR forms (``fir-symmetric`` only for
     symmetric or antisymmetric taps) and the direct forms.
     """
-    import numpy as np
 
     if spec.is_fir:
         out = [("fir-direct", None), ("fir-transposed", None)]
-        taps = np.trim_zeros(spec.b)  # leading zeros are a pure delay
-        _, asym, _ = symmetry(taps)
-        if asym <= 1e-12 * float(np.max(np.abs(taps))):
+        if folding(spec.b)[2] is None:
             out.append(("fir-symmetric", None))
         return out
     out = [(f, None) for f in SECTION_FORMS]

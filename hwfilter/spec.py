@@ -612,20 +612,11 @@ def from_dict(data: dict, source: str = "<python>") -> FilterSpec:
             field="realization.form",
         )
     if realization.form == "fir-symmetric":
-        from .realize import symmetry
+        from .realize import folding
 
-        # leading zeros are a pure delay; the symmetry is that of the taps between
-        lead = len(b) - len(np.trim_zeros(b, "f"))
-        sign, asym, k = symmetry(np.trim_zeros(b))
-        k += lead
-        scale = float(np.max(np.abs(b)))
-        if asym > 1e-12 * max(scale, 1e-300):
-            raise FilterFileError(
-                f"fir-symmetric needs symmetric or antisymmetric taps; largest asymmetry "
-                f"{asym:.6g} at tap {k}",
-                source=source,
-                field="realization.form",
-            )
+        problem = folding(b)[2]
+        if problem:
+            raise FilterFileError(problem, source=source, field="realization.form")
     hw = _Reader(source, "hardware", data.get("hardware", {}), ("pipelining",))
     response = _response(source, data["spec"], sample_rate) if "spec" in data else None
     return FilterSpec(

@@ -14,7 +14,7 @@ from scipy import signal
 from ..graph import Graph
 from ._build import Builder
 from .direct import SECTION_FORMS, add_section
-from .fir import FIR_FORMS, add_fir, symmetry
+from .fir import FIR_FORMS, add_fir, folding, symmetry
 from .sections import GAIN_SPREADS, ORDERS, cascade_sections, parallel_sections
 
 __all__ = [
@@ -25,6 +25,7 @@ __all__ = [
     "ORDERS",
     "GAIN_SPREADS",
     "realize",
+    "folding",
     "symmetry",
     "cascade_sections",
     "parallel_sections",

@@ -9,7 +9,7 @@ import numpy as np
 
 from ._build import Builder
 
-__all__ = ["FIR_FORMS", "add_fir", "symmetry"]
+__all__ = ["FIR_FORMS", "add_fir", "folding", "symmetry"]
 
 FIR_FORMS = ("fir-direct", "fir-transposed", "fir-symmetric")
 
@@ -30,6 +30,31 @@ def symmetry(taps) -> tuple[int, float, int]:
         if best is None or cand[1] < best[1]:
             best = cand
     return best
+
+
+def folding(taps) -> tuple[int, int, str | None]:
+    """How ``taps`` fold for ``fir-symmetric``: ``(lead, sign, problem)``.
+
+    Leading zeros are a pure delay of ``lead`` taps and trailing zeros are dropped; the
+    taps between fold when symmetric (``sign`` +1) or antisymmetric (-1) within 1e-12 of
+    the largest tap. ``problem`` says why they do not fold (``None`` when they do).
+    """
+    h = np.asarray(taps, dtype=float)
+    lead = len(h) - len(np.trim_zeros(h, "f"))
+    core = np.trim_zeros(h)
+    if len(core) == 0:
+        return lead, 1, None
+    sign, asym, k = symmetry(core)
+    if asym > 1e-12 * max(float(np.max(np.abs(core))), 1e-300):
+        return (
+            lead,
+            sign,
+            (
+                f"fir-symmetric needs symmetric or antisymmetric taps; largest asymmetry "
+                f"{asym:.6g} at tap {lead + k}"
+            ),
+        )
+    return lead, sign, None
 
 
 def add_fir(bld: Builder, form: str, taps, src: str) -> str:
@@ -65,16 +90,11 @@ def add_fir(bld: Builder, form: str, taps, src: str) -> str:
             bld.connect(sdel[k - 1], nxt)
         return y
     if form == "fir-symmetric":
-        # leading zeros are a pure delay: the symmetry is that of the taps after them
-        lead = n - len(np.trim_zeros(np.asarray(h), "f"))
+        lead, sign, problem = folding(h)  # the caller has dropped trailing zeros
+        if problem:
+            raise ValueError(problem)
         core = h[lead:]
         m = len(core)
-        sign, asym, at = symmetry(core) if m else (1, 0.0, 0)
-        if asym > 1e-12 * max(max(abs(v) for v in core) if m else 0.0, 1e-300):
-            raise ValueError(
-                f"fir-symmetric needs symmetric or antisymmetric taps; largest asymmetry "
-                f"{asym:.6g} at tap {lead + at}"
-            )
         line = [src]
         for k in range(1, n):
             line.append(bld.delay(f"x{k}", line[-1]))
