@@ -20,6 +20,7 @@ from pathlib import Path
 from .errors import FilterFileError
 
 __all__ = [
+    "ACCURACY_LABELS",
     "BOARDS_DIR",
     "FAMILIES",
     "SCHEMA_VERSION",
@@ -38,6 +39,8 @@ BOARDS_DIR = Path(__file__).resolve().parent.parent / "boards"
 FAMILIES = ("ice40", "ecp5", "gowin", "generic-lut6")
 #: the profile schema this module reads
 SCHEMA_VERSION = 1
+#: how reports name the keys of a profile's ``[accuracy]`` table
+ACCURACY_LABELS = {"luts": "LUTs", "fmax": "Fmax"}
 
 
 @dataclass(frozen=True)
@@ -162,6 +165,11 @@ class DeviceProfile:
     def source(self, key: str) -> str:
         """The source text of field ``key`` (for example ``"delay.lut"``)."""
         return self.sources[key]
+
+    def accuracy_notes(self) -> dict[str, str]:
+        """The ``[accuracy]`` texts with their sources, by key (``"luts"``, ``"fmax"``;
+        :data:`ACCURACY_LABELS` names them)."""
+        return {k: f"{v} ({self.source('accuracy.' + k)})" for k, v in self.accuracy.items()}
 
     def as_dict(self) -> dict:
         """Plain data (for JSON reports)."""

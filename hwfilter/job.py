@@ -463,9 +463,7 @@ def run_job(
             "generator": f"hwfilter {__version__}",
             "realization": a["realization"],
             "device": profile.name,
-            "estimate_accuracy": {
-                k: f"{v} ({profile.source('accuracy.' + k)})" for k, v in profile.accuracy.items()
-            },
+            "estimate_accuracy": profile.accuracy_notes(),
             "pipelining": pipe,
             "caution": CAUTION,
             "verdicts": {

@@ -12,6 +12,8 @@ import html
 import json
 import math
 
+from .boards import ACCURACY_LABELS
+
 __all__ = ["CAUTION", "render_html", "to_json", "table_html"]
 
 CAUTION = (
@@ -155,10 +157,12 @@ def render_html(results: dict, images: dict[str, bytes]) -> str:
         parts.append(f"<p>Device profile: {html.escape(str(r.get('device', '')))}.</p>")
         acc = r.get("estimate_accuracy") or {}
         if acc:
-            names = {"luts": "LUTs", "fmax": "Fmax"}
             parts.append(
                 "<p>How close these estimates came to the synthesis tools on this profile:</p><ul>"
-                + "".join(f"<li>{names.get(k, k)}: {html.escape(v)}</li>" for k, v in acc.items())
+                + "".join(
+                    f"<li>{ACCURACY_LABELS.get(k, k)}: {html.escape(v)}</li>"
+                    for k, v in acc.items()
+                )
                 + "</ul>"
             )
         parts.append(

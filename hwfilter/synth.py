@@ -237,8 +237,7 @@ def count_cells(cells: dict, profile: DeviceProfile) -> tuple[float, int, float]
 def _constant_luts(netlist: dict, top: str, profile: DeviceProfile) -> dict:
     """LUT cells of ``top`` whose every input is a constant, by type: they compute a
     constant and use no LUT on the device (nextpnr's packer removes them)."""
-    mods = netlist.get("modules", {})
-    mod = mods.get(top) or mods.get(f"\\{top}") or {}
+    mod = _module(netlist, top)
     kinds = {c for c in profile.synthesis.lut_cells if "LUT" in c.upper()}
     out: dict[str, int] = {}
     for cell in mod.get("cells", {}).values():
@@ -256,11 +255,16 @@ def _constant_luts(netlist: dict, top: str, profile: DeviceProfile) -> dict:
     return out
 
 
+def _module(data: dict, top: str) -> dict:
+    """Module ``top`` of Yosys JSON output (``stat -json`` names it with a backslash,
+    ``write_json`` without; a flattened ``stat`` may only give the design)."""
+    mods = data.get("modules", {})
+    return mods.get(f"\\{top}") or mods.get(top) or data.get("design", {})
+
+
 def _stat_cells(stat: dict, top: str) -> dict:
     """Cell counts of module ``top`` (flattened) from ``stat -json`` output."""
-    mods = stat.get("modules", {})
-    mod = mods.get(f"\\{top}") or mods.get(top) or stat.get("design", {})
-    cells = mod.get("num_cells_by_type", {})
+    cells = _module(stat, top).get("num_cells_by_type", {})
     return {k: int(v) for k, v in cells.items() if not k.startswith("$scopeinfo")}
 
 
@@ -336,13 +340,12 @@ def synthesize(
         progress(f"Yosys {command} (resources): cached result")
     luts, ffs, dsps = count_cells(data["cells"], profile)
     constant = data.get("constant_luts", {})
-    weights = profile.synthesis.lut_cells
     return SynthResult(
         family=profile.family,
         command=command,
         dsp=dsp,
         cells=data["cells"],
-        luts=luts - sum(n * weights.get(c, 0) for c, n in constant.items()),
+        luts=luts - count_cells(constant, profile)[0],
         flip_flops=ffs,
         dsp_blocks=dsps,
         seconds=data["seconds"],

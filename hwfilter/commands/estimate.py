@@ -17,7 +17,7 @@ import json
 import math
 import sys
 
-from ..boards import load_profile
+from ..boards import ACCURACY_LABELS, load_profile
 from ..errors import FilterFileError
 from ..estimate import MULTIPLIER_MODES, estimate
 from ..pipeline import applicable_realizations, quantized_graph
@@ -202,10 +202,9 @@ def render_table(rows: list[dict], profile) -> str:
 def accuracy_lines(profile, indent: str = "  ") -> list[str]:
     """How close this profile's estimates came to the synthesis tools (its ``[accuracy]``
     table), one line per figure."""
-    names = {"luts": "LUTs", "fmax": "Fmax"}
     return [
-        f"{indent}accuracy of {names[k]} on {profile.name}: {v} ({profile.source('accuracy.' + k)})"
-        for k, v in profile.accuracy.items()
+        f"{indent}accuracy of {ACCURACY_LABELS[k]} on {profile.name}: {v}"
+        for k, v in profile.accuracy_notes().items()
     ]
 
 
