@@ -117,7 +117,9 @@ class SynthesisFlow:
     exists; ``adder_trees_with_dsp``: the flow with hard multipliers splits
     multi-operand sums into two-input adders (no compressor trees); ``lut_cells``
     weighs cell types as LUT equivalents (``CCU2C = 2``); ``dsp_cells`` weighs hard
-    multiplier cells as blocks.
+    multiplier cells as blocks; ``placed_luts`` names the entry of nextpnr's
+    utilization report that counts LUTs on the device (``TRELLIS_COMB``; empty: the
+    placed count is not compared).
     """
 
     yosys: str
@@ -130,6 +132,7 @@ class SynthesisFlow:
     lut_cells: dict
     ff_cells: tuple[str, ...]
     dsp_cells: dict
+    placed_luts: str = ""
 
 
 @dataclass(frozen=True)
@@ -157,6 +160,9 @@ class DeviceProfile:
     delay: DelayModel
     synthesis: SynthesisFlow
     default_clock_mhz: float | None = None
+    # LUT equivalents the place-and-route adds per carry chain (``[logic]
+    # chain_end_luts``; 0 where not measured)
+    chain_end_luts: int = 0
     sources: dict = field(default_factory=dict, repr=False, compare=False)
     # how close the estimates came to the synthesis tools on this profile, as measured
     # (``"luts"``, ``"fmax"``: text with its source in ``sources["accuracy.<key>"]``)
@@ -304,6 +310,7 @@ _SYNTH_KEYS = (
     "lut_cells",
     "ff_cells",
     "dsp_cells",
+    "placed_luts",
     "multiplier_pass",
 )
 
@@ -501,8 +508,9 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         absorbs_post_adder=m.flag("absorbs_post_adder"),
     )
 
-    lg = top.sub("logic", ("carry_bits_per_cell",))
+    lg = top.sub("logic", ("carry_bits_per_cell", "chain_end_luts"))
     carry = lg.integer("carry_bits_per_cell", 1)
+    chain_end = lg.integer("chain_end_luts", 0) if "chain_end_luts" in lg.table else 0
 
     d = top.sub("delay", _DELAY_KEYS)
     delay = DelayModel(**{k: d.delay(k) for k in _DELAY_KEYS})
@@ -522,6 +530,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         lut_cells=s.weights("lut_cells"),
         ff_cells=s.strings("ff_cells"),
         dsp_cells=s.weights("dsp_cells"),
+        placed_luts=s.string("placed_luts", default=""),
     )
     passes = _passes(src, s, block)
     accuracy = {}
@@ -534,6 +543,8 @@ def _profile(src: str, data: dict) -> DeviceProfile:
             if not isinstance(v, str) or not v.strip():
                 raise acc.error(key, f"value must be a non-empty text, not {v!r}")
             accuracy[key] = v
+    if flow.placed_luts and not flow.nextpnr:
+        raise s.error("placed_luts", "needs a place-and-route tool (nextpnr)")
     if not flow.yosys.startswith("synth_"):
         raise s.error("yosys", f"must be a Yosys synth_* command, not {flow.yosys!r}")
     if not flow.lut_cells or not flow.ff_cells:
@@ -553,6 +564,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         multiplier=block,
         mapping=passes,
         carry_bits_per_cell=carry,
+        chain_end_luts=chain_end,
         delay=delay,
         synthesis=flow,
         default_clock_mhz=clock,

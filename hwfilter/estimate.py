@@ -502,7 +502,9 @@ def estimate(
         problems.append(
             f"needs {model.dsp_blocks:g} multiplier blocks, the device has {profile.multipliers}"
         )
-    luts = round(model.luts)
+    # the place-and-route's cells at the ends of every carry chain (profile, measured)
+    model.lut_detail["carry chain ends"] = profile.chain_end_luts * model.chains
+    luts = round(model.luts + model.lut_detail["carry chain ends"])
     if luts > profile.luts:
         problems.append(f"needs about {luts} LUTs, the device has {profile.luts}")
     if registers > profile.flip_flops:
@@ -621,6 +623,7 @@ class _Model:
         self.times: dict[str, float] = {}
         self.luts = 0.0
         self.lut_detail = {"sums": 0.0, "quantizers": 0.0, "multipliers": 0.0}
+        self.chains = 0  # carry chains built (each costs the profile's chain_end_luts)
         self.dsp_blocks = 0.0
         self.products: list[MultiplierUse] = []
         self.notes: list[str] = []
@@ -661,6 +664,7 @@ class _Model:
         """A product whose tiles join the sum that reads it: no adders of its own."""
         m = self._maps[self.rep.get(name, name)]
         self._add_luts("multipliers", -sum(m.partial_adders))
+        self.chains -= len(m.partial_adders)
         self.times[name] = self.d.routing + self.d.multiplier
 
     def _only_reader(self, name: str):
@@ -699,6 +703,7 @@ class _Model:
             r = self._only_reader(n.name)
             if r is None or r.kind != "add":  # a negation of its own (else: in the sum)
                 self._add_luts("sums", n.format.bits)
+                self.chains += 1
                 self.times[n.name] = self.d.routing + self.carry(n.format.bits)
             return
         a = max(src.format.bits - self.zeros[src.name], 1)  # known-zero bits are wiring
@@ -716,6 +721,7 @@ class _Model:
                     t += self.d.routing + self.carry(w)
                 self.times[n.name] = t
                 self._add_luts("multipliers", sum(m.partial_adders))
+                self.chains += len(m.partial_adders)
                 for pa, pb in m.logic_parts:  # chunks too narrow for a block
                     self._add_luts("multipliers", self.fa_luts * min(pa, pb) * max(pa, pb))
         else:
@@ -967,6 +973,7 @@ class _Model:
         if len(lsbs) <= 1:
             if leaves and any(leaf.negated for leaf in leaves):
                 bits = width - min(lsbs, default=0)
+                self.chains += bits > 0
                 return float(bits), d.routing + self.carry(bits)
             return 0.0, 0.0
         low = max(min(lsbs), 0)
@@ -975,9 +982,11 @@ class _Model:
             if any(leaf.negated and leaf.lsb == min(lsbs) for leaf in leaves):
                 first = low  # the low bits of a subtracted word need the carry chain
             final = max(width - first, 0)
+            self.chains += final > 0
             return float(final), d.routing + self.carry(final)
         fa_columns, levels, _ = _compressor(lsbs, width)
         final = max(width - low, 0)
+        self.chains += final > 0
         late = sum(len(leaf.rows) for leaf in leaves if leaf.late) / len(lsbs)
         luts = self.fa_cost(levels) * fa_columns * (1 + LATE_OPERANDS * late) + final
         t = d.routing + levels * (d.lut + d.routing) + self.carry(final)
@@ -1017,11 +1026,13 @@ class _Model:
                 width = (rbits if sat else q.format.bits) + k
             width = min(width, src.format.bits + 1)
             self._add_luts("quantizers", width)
+            self.chains += 1
             t += self.d.routing + self.carry(width)
         if sat:
             # two comparisons over the rounded word (one carry chain's worth) and one LUT
             # per output bit for the choice between the word and the two limits
             # (measured on Yosys 0.70 synth_ecp5 netlists, see docs/estimates.md)
             self._add_luts("quantizers", rbits + q.format.bits)
+            self.chains += 1  # one of the comparisons is a carry chain (Yosys 0.70 netlists)
             t += self.d.routing + self.carry(rbits) + self.d.routing + self.d.lut
         self.times[q.name] = t

@@ -146,13 +146,22 @@ def main(argv=None):
     if a.json:
         a.json.write_text(json.dumps(rows, indent=1))
     extra = any("LUTs (no DSP)" in r for r in rows)
+    placed = any("LUTs placed" in r for r in rows)
     print(
         "| filter | form | section | pipelining | blocks est/tool | FF est/tool (ratio) "
-        "| LUT est/tool (ratio) | Fmax MHz est/tool (ratio) |"
+        "| LUT est/Yosys (ratio) |"
+        + (" LUT est/placed (ratio) |" if placed else "")
+        + " Fmax MHz est/tool (ratio) |"
         + (" LUT no-DSP est/tool (ratio) |" if extra else "")
     )
-    print("|---|---|---|---|---|---|---|---|" + ("---|" if extra else ""))
+    print(
+        "|---|---|---|---|---|---|---|"
+        + ("---|" if placed else "")
+        + "---|"
+        + ("---|" if extra else "")
+    )
     lut_ratios, fmax_ratios, n_block, n_ff, n_lut, n_fmax, n_placed = [], [], 0, 0, 0, 0, 0
+    placed_ratios, n_lut_placed = [], 0
     for r in rows:
         if "error" in r:
             print(f"| {r['filter']} | {r['form']} | {r['section'] or ''} | error: {r['error']} |")
@@ -166,6 +175,13 @@ def main(argv=None):
         lr = _ratio(lut)
         lut_ratios.append(lr)
         n_lut += abs(lr - 1) <= 0.25
+        pcell = " - |" if placed else ""
+        if r.get("LUTs placed"):
+            lp = r["LUTs placed"]
+            pr = _ratio(lp)
+            placed_ratios.append(pr)
+            n_lut_placed += abs(pr - 1) <= 0.25
+            pcell = f" {lp[0]:.0f}/{lp[1]:.0f} ({pr:.2f}) |"
         fcell = "not placed" if "not placed" in r else "-"
         if fm and fm[1]:
             fr = _ratio(fm)
@@ -176,7 +192,7 @@ def main(argv=None):
         print(
             f"| {r['filter']} | {r['form']} | {r['section']} | {r['pipelining']} "
             f"| {b[0]:g}/{b[1]:g} | {f[0]:g}/{f[1]:g} ({_ratio(f):.2f}) "
-            f"| {lut[0]:.0f}/{lut[1]:.0f} ({lr:.2f}) | {fcell} |"
+            f"| {lut[0]:.0f}/{lut[1]:.0f} ({lr:.2f}) |{pcell} {fcell} |"
             + (f" {nodsp[0]:.0f}/{nodsp[1]:.0f} ({_ratio(nodsp):.2f}) |" if nodsp else "")
         )
     n = len(lut_ratios)
@@ -187,6 +203,13 @@ def main(argv=None):
         f"median {statistics.median(lut_ratios):.2f})",
         end="",
     )
+    if placed_ratios:
+        print(
+            f", LUTs placed within 25 % {n_lut_placed} of {len(placed_ratios)} placed "
+            f"({min(placed_ratios):.2f} to {max(placed_ratios):.2f}, "
+            f"median {statistics.median(placed_ratios):.2f})",
+            end="",
+        )
     if fmax_ratios:
         print(
             f", Fmax within 25 % {n_fmax} of {n_placed} placed "

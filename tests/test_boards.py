@@ -181,6 +181,14 @@ def _broken(tmp_path, old: str, new: str) -> str:
             "value must be a non-empty text, not 80",
         ),
         ("\nfmax = { value = ", "\nfmx = { value = ", "accuracy.fmx", "did you mean 'fmax'?"),
+        (
+            "chain_end_luts = { value = 4,",
+            "chain_end_luts = { value = -1,",
+            "logic.chain_end_luts",
+            "value must be at least 0, not -1",
+        ),
+        ('placed_luts = "TRELLIS_COMB"', "placed_luts = 5", "synthesis.placed_luts", "string"),
+        ('nextpnr = "ecp5"', 'nextpnr = ""', "synthesis.placed_luts", "needs a place-and-route"),
     ],
 )
 def test_bad_profile_names_file_field_problem(tmp_path, old, new, field, problem):

@@ -218,7 +218,13 @@ def render_estimate(e, profile) -> str:
         f"{e.adders} two-input adders; {e.delays} delays",
         f"  multiplier blocks {e.dsp_blocks:g} of {profile.multipliers}",
         f"  LUTs              {e.luts} of {profile.luts} (sums {e.lut_detail['sums']}, "
-        f"quantizers {e.lut_detail['quantizers']}, multipliers {e.lut_detail['multipliers']})",
+        f"quantizers {e.lut_detail['quantizers']}, multipliers {e.lut_detail['multipliers']}"
+        + (
+            f", carry chain ends {e.lut_detail['carry chain ends']}"
+            if e.lut_detail.get("carry chain ends")
+            else ""
+        )
+        + ")",
         f"  flip-flops        {e.registers} of {profile.flip_flops} ("
         + ", ".join(f"{k} {v}" for k, v in e.register_detail.items() if v)
         + ")",
