@@ -175,8 +175,8 @@ def _broken(tmp_path, old: str, new: str) -> str:
         ),
         ('nextpnr = "ecp5"', 'nextpnr = "vpr"', "synthesis.nextpnr", "must be ecp5, ice40"),
         (
-            'luts = { value = "81 of 87',
-            'luts = { value = 80, source = "x" } # "81 of 87',
+            'luts = { value = "82 of 83',
+            'luts = { value = 80, source = "x" } # "82 of 83',
             "accuracy.luts",
             "value must be a non-empty text, not 80",
         ),
