@@ -74,6 +74,8 @@ class ProductMap:
     partial_adders: tuple = ()
     adder_levels: int = 0
     tiles: tuple = ()
+    # per partial adder: one of its two words is a tile's own product (not a sum)
+    raw_tile_adders: tuple = ()
 
 
 def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
@@ -83,7 +85,7 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
     (too narrow) is offered to the next; what is left after the last pass is logic.
     """
     pending = [(a_bits, b_bits, y_bits, True, True, 0)]
-    blocks, cells, adders, levels, tiles = 0.0, 0, [], 0, []
+    blocks, cells, adders, levels, tiles, raw = 0.0, 0, [], 0, [], []
     for p in passes:
         out = _PassResult()
         for a, b, y, sa, sb, off in pending:
@@ -92,6 +94,7 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
         blocks += out.cells * p.blocks
         cells += out.cells
         adders += out.adders
+        raw += out.raw
         tiles += out.tiles
         # a product the pass leaves becomes a plain product again; a mixed-signedness
         # one takes a bit for the unsigned operand (as Yosys's soft multiplier does)
@@ -101,13 +104,14 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
                 a, b = (a + 1, b) if not sa else (a, b + 1)
             pending.append((a, b, y, True, True, off))
     logic = tuple((a, b) for a, b, _, _, _, _ in pending)
-    return ProductMap(blocks, cells, logic, tuple(adders), levels, tuple(sorted(tiles)))
+    return ProductMap(blocks, cells, logic, tuple(adders), levels, tuple(sorted(tiles)), tuple(raw))
 
 
 class _PassResult:
     def __init__(self):
         self.cells = 0
         self.adders: list[int] = []
+        self.raw: list[bool] = []
         self.left: list[tuple] = []
         self.tiles: list[int] = []
 
@@ -135,12 +139,15 @@ def _map_cell(a, b, y, sa, sb, *, top: bool, p: MappingPass, out: _PassResult, o
         last = wide - n * step
         part_y = min(y, other + part)
         depth = 0
+        raw = []
         for i in range(n):
             at = off + i * step
+            before = out.cells
             if wide_is_a:
                 d = _map_cell(part, b, part_y, bool(head), sb, top=False, p=p, out=out, off=at)
             else:
                 d = _map_cell(a, part, part_y, sa, bool(head), top=False, p=p, out=out, off=at)
+            raw.append(d == 0 and out.cells == before + 1)  # one tile, read whole
             depth = max(depth, d)
         at = off + n * step
         if wide_is_a:
@@ -149,6 +156,7 @@ def _map_cell(a, b, y, sa, sb, *, top: bool, p: MappingPass, out: _PassResult, o
             d = _map_cell(a, last, a + last, sa, sb, top=False, p=p, out=out, off=at)
         depth = max(depth, d)
         out.adders.extend(max(y - (i + 1) * step, 1) for i in range(n))
+        out.raw.extend(raw)
         return depth + n
     out.cells += 1
     out.tiles.append(off)
@@ -315,6 +323,8 @@ class _Leaf:
     tiled: str = ""
     tiles: tuple = ()
     late: bool = False
+    part: bool = False  # read from above its lowest bit (its low bits pass around)
+    alone: bool = True  # no identical product was merged with it (it has one reader)
 
 
 @dataclass
@@ -619,10 +629,14 @@ class _Model:
         self.fa_luts = 1 if profile.lut_inputs >= 6 else 2
         # with hard multipliers some flows split every sum into two-input adders
         self.adder_trees = mode == "auto" and profile.synthesis.adder_trees_with_dsp
+        # Yosys's iCE40 DSP packing (techlibs/ice40/ice40_dsp.pmg) has its own rules for
+        # the addition it takes into a block: see _tree_cost and _gain
+        self.ice40_dsp = self.adder_trees and profile.family == "ice40"
         self._used_blocks: set[str] = set()
         self.times: dict[str, float] = {}
         self.luts = 0.0
         self.lut_detail = {"sums": 0.0, "quantizers": 0.0, "multipliers": 0.0}
+        self.tile_sums_absorbed = 0
         self.chains = 0  # carry chains built (each costs the profile's chain_end_luts)
         self.dsp_blocks = 0.0
         self.products: list[MultiplierUse] = []
@@ -666,6 +680,13 @@ class _Model:
         self._add_luts("multipliers", -sum(m.partial_adders))
         self.chains -= len(m.partial_adders)
         self.times[name] = self.d.routing + self.d.multiplier
+
+    def _full_width(self, name: str, width: int) -> bool:
+        """ice40_dsp's width rule: a sum wider than the product it takes into the block
+        needs the product at its natural width (input bits plus constant bits)."""
+        n = self.g[name]
+        natural = self.g[n.inputs[0]].format.bits + abs(n.value).bit_length() + 1
+        return width <= n.format.bits or n.format.bits >= natural
 
     def _only_reader(self, name: str):
         users = self.g.users(name)
@@ -720,8 +741,19 @@ class _Model:
                 for w in m.partial_adders[: m.adder_levels]:
                     t += self.d.routing + self.carry(w)
                 self.times[n.name] = t
-                self._add_luts("multipliers", sum(m.partial_adders))
-                self.chains += len(m.partial_adders)
+                adders = list(m.partial_adders)
+                if self.ice40_dsp and self.p.multiplier.absorbs_post_adder:
+                    # ice40_dsp adds a tile sum inside the block of a tile it reads whole
+                    # (a tile's own product, not a sum of tiles), when the sum is no wider
+                    # than the accumulator
+                    acc = self.p.multiplier.accumulator_bits
+                    kept = [
+                        w for w, r in zip(m.partial_adders, m.raw_tile_adders) if w > acc or not r
+                    ]
+                    self.tile_sums_absorbed += len(adders) - len(kept)
+                    adders = kept
+                self._add_luts("multipliers", sum(adders))
+                self.chains += len(adders)
                 for pa, pb in m.logic_parts:  # chunks too narrow for a block
                     self._add_luts("multipliers", self.fa_luts * min(pa, pb) * max(pa, pb))
         else:
@@ -827,7 +859,7 @@ class _Model:
                     leaf = _Leaf(lo, off + sn.format.bits, tiled=src, tiles=m.tiles)
                 else:
                     late = sn.kind in ("add", "quantize")  # out of a carry chain
-                    leaf = _Leaf(lo, off + sn.format.bits, dsp=dsp, late=late)
+                    leaf = _Leaf(lo, off + sn.format.bits, dsp=dsp, late=late, alone=alone)
                 out.append((sign, leaf))
         return out
 
@@ -897,7 +929,7 @@ class _Model:
                 node = _Leaf(lsb, node.msb, negated=negated)  # after its tile adders
             if isinstance(node, _Leaf):
                 if lsb != node.lsb and len(node.rows) == 1:
-                    node = replace(node, lsb=lsb, negated=negated)
+                    node = replace(node, lsb=lsb, negated=negated, part=True)
                 elif negated:
                     node = replace(node, negated=True)
                 leaves.append(node)
@@ -935,6 +967,16 @@ class _Model:
             and width <= max(self.p.multiplier.accumulator_bits, 1)
         ):
             dsp = [leaf for leaf in leaves if leaf.dsp and leaf.dsp not in self._used_blocks]
+            if self.ice40_dsp:
+                # ice40_dsp takes an $add (not a subtraction) that reads the product
+                # whole from its lowest bit, the product's only reader
+                dsp = [
+                    leaf
+                    for leaf in dsp
+                    if not leaf.part and leaf.alone and self._full_width(leaf.dsp, width)
+                ]
+                if any(leaf.negated for leaf in leaves):
+                    dsp = []
             if dsp:
                 # the product's block adds the other word: no logic, the block's delay
                 self._used_blocks.add(dsp[0].dsp)
