@@ -19,6 +19,8 @@ The estimate is a pass over the quantized signal-flow graph and a
 - **quantizers**: the rounding addition (its own carry adder) and, when the word can
   overflow and the rule is saturate, two comparisons on the bits that decide overflow
   and a two-way choice per output bit.
+- **carry-chain ends**: the profile's ``chain_end_luts`` for every carry chain built, the
+  cells the place-and-route adds at its ends (nextpnr's ECP5 packer: a CCU2C in, one out).
 - **registers**: states, pipeline, output and control flip-flops from the hardware plan
   (:func:`hwfilter.hdl.plan`), less registers the profile's blocks absorb.
 - **timing**: node times from the profile's delay model on the data-flow graph; the
