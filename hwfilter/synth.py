@@ -237,8 +237,8 @@ def count_cells(cells: dict, profile: DeviceProfile) -> tuple[float, int, float]
 
 
 def _constant_luts(netlist: dict, top: str, profile: DeviceProfile) -> dict:
-    """LUT cells of ``top`` whose every input is a constant, by type: they compute a
-    constant and use no LUT on the device (nextpnr's packer removes them)."""
+    """LUT cells of ``top`` whose every input is a constant, by type (reported: on ECP5
+    they are halves of wide-function pairs, and nextpnr places them)."""
     mod = _module(netlist, top)
     kinds = {c for c in profile.synthesis.lut_cells if "LUT" in c.upper()}
     out: dict[str, int] = {}
