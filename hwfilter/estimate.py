@@ -679,8 +679,7 @@ class _Model:
     def _merge_tiles(self, name: str):
         """A product whose tiles join the sum that reads it: no adders of its own."""
         m = self._maps[self.rep.get(name, name)]
-        self._add_luts("multipliers", -sum(m.partial_adders))
-        self.chains -= len(m.partial_adders)
+        self._add_luts("multipliers", -sum(m.partial_adders), chains=-len(m.partial_adders))
         self.times[name] = self.d.routing + self.d.multiplier
 
     def _full_width(self, name: str, width: int) -> bool:
@@ -694,9 +693,11 @@ class _Model:
         users = self.g.users(name)
         return users[0] if len(users) == 1 else None
 
-    def _add_luts(self, kind: str, n: float):
+    def _add_luts(self, kind: str, n: float, chains: int = 0):
+        """``n`` LUTs of ``kind``, in ``chains`` carry chains."""
         self.luts += n
         self.lut_detail[kind] += n
+        self.chains += chains
 
     # -- the pass -----------------------------------------------------------------------
     def run(self):
@@ -725,8 +726,7 @@ class _Model:
         if is_power_of_two(v):
             r = self._only_reader(n.name)
             if r is None or r.kind != "add":  # a negation of its own (else: in the sum)
-                self._add_luts("sums", n.format.bits)
-                self.chains += 1
+                self._add_luts("sums", n.format.bits, chains=1)
                 self.times[n.name] = self.d.routing + self.carry(n.format.bits)
             return
         a = max(src.format.bits - self.zeros[src.name], 1)  # known-zero bits are wiring
@@ -743,19 +743,16 @@ class _Model:
                 for w in m.partial_adders[: m.adder_levels]:
                     t += self.d.routing + self.carry(w)
                 self.times[n.name] = t
-                adders = list(m.partial_adders)
+                adders = m.partial_adders
                 if self.ice40_dsp and self.p.multiplier.absorbs_post_adder:
                     # ice40_dsp adds a tile sum inside the block of a tile it reads whole
                     # (a tile's own product, not a sum of tiles), when the sum is no wider
                     # than the accumulator
                     acc = self.p.multiplier.accumulator_bits
-                    kept = [
-                        w for w, r in zip(m.partial_adders, m.raw_tile_adders) if w > acc or not r
-                    ]
+                    kept = [w for w, r in zip(adders, m.raw_tile_adders) if w > acc or not r]
                     self.tile_sums_absorbed += len(adders) - len(kept)
                     adders = kept
-                self._add_luts("multipliers", sum(adders))
-                self.chains += len(adders)
+                self._add_luts("multipliers", sum(adders), chains=len(adders))
                 for pa, pb in m.logic_parts:  # chunks too narrow for a block
                     self._add_luts("multipliers", self.fa_luts * min(pa, pb) * max(pa, pb))
         else:
@@ -1069,14 +1066,13 @@ class _Model:
                 # chooses it)
                 width = (rbits if sat else q.format.bits) + k
             width = min(width, src.format.bits + 1)
-            self._add_luts("quantizers", width)
-            self.chains += 1
+            self._add_luts("quantizers", width, chains=1)
             t += self.d.routing + self.carry(width)
         if sat:
             # two comparisons over the rounded word (one carry chain's worth) and one LUT
             # per output bit for the choice between the word and the two limits
             # (measured on Yosys 0.70 synth_ecp5 netlists, see docs/estimates.md)
-            self._add_luts("quantizers", rbits + q.format.bits)
-            self.chains += 1  # one of the comparisons is a carry chain (Yosys 0.70 netlists)
+            # one of the comparisons is a carry chain (Yosys 0.70 netlists)
+            self._add_luts("quantizers", rbits + q.format.bits, chains=1)
             t += self.d.routing + self.carry(rbits) + self.d.routing + self.d.lut
         self.times[q.name] = t

@@ -683,30 +683,17 @@ def cross_check(
     t = None
     flow = profile.synthesis
     if timing and flow.nextpnr:
-        names = list(signal_names(graph).values())
-        t = place_and_route(
-            verilog,
-            top,
-            graph.input.format.bits,
-            graph.output.format.bits,
-            profile,
-            seed=seed,
-            signal_names=names,
-            progress=progress,
-            use_cache=use_cache,
-        )
+        ib, ob = graph.input.format.bits, graph.output.format.bits
+
+        def pnr(v, module, **kw):
+            return place_and_route(
+                v, module, ib, ob, profile, seed=seed, progress=progress, use_cache=use_cache, **kw
+            )
+
+        t = pnr(verilog, top, signal_names=list(signal_names(graph).values()))
         placed = t.utilization.get(flow.placed_luts) if flow.placed_luts else None
         if placed is not None and flow.timing_with_dsp:
-            base = place_and_route(
-                null_core(graph.input.format.bits, graph.output.format.bits),
-                NULL_CORE,
-                graph.input.format.bits,
-                graph.output.format.bits,
-                profile,
-                seed=seed,
-                progress=progress,
-                use_cache=use_cache,
-            ).utilization.get(flow.placed_luts, 0)
+            base = pnr(null_core(ib, ob), NULL_CORE).utilization.get(flow.placed_luts, 0)
             rows.insert(2, Comparison("LUTs placed", est.luts, placed - base))
             notes.append(
                 f"LUTs placed: nextpnr's {flow.placed_luts} count of the timing wrapper, "
