@@ -49,7 +49,11 @@ class MultiplierBlock:
 
     ``absorbs_output_register`` / ``absorbs_post_adder``: the synthesis flow packs a
     register after a product, or one addition of the product with another word, into the
-    block (so they cost no flip-flops or LUTs).
+    block (so they cost no flip-flops or LUTs). ``block_registers``: how many registers
+    in series before a multiplier's data input the flow copies into each block that reads
+    them (0: none); a register every reader of which took a copy leaves the fabric.
+    ``absorbs_pre_adder``: the flow packs a two-input sum read only by a single-block
+    product into the block's pre-adder.
     """
 
     a_bits: int
@@ -59,6 +63,8 @@ class MultiplierBlock:
     accumulator_bits: int
     absorbs_output_register: bool
     absorbs_post_adder: bool
+    block_registers: int = 0
+    absorbs_pre_adder: bool = False
 
 
 @dataclass(frozen=True)
@@ -119,7 +125,9 @@ class SynthesisFlow:
     weighs cell types as LUT equivalents (``CCU2C = 2``); ``dsp_cells`` weighs hard
     multiplier cells as blocks; ``placed_luts`` names the entry of nextpnr's
     utilization report that counts LUTs on the device (``TRELLIS_COMB``; empty: the
-    placed count is not compared).
+    placed count is not compared); ``sim_models``: the file of Yosys's cell simulation
+    models for the family (relative to Yosys's share folder, ``xilinx/cells_sim.v``;
+    empty: the netlist cannot be simulated, as where the hard multiplier has no model).
     """
 
     yosys: str
@@ -133,6 +141,7 @@ class SynthesisFlow:
     ff_cells: tuple[str, ...]
     dsp_cells: dict
     placed_luts: str = ""
+    sim_models: str = ""
 
 
 @dataclass(frozen=True)
@@ -163,6 +172,9 @@ class DeviceProfile:
     # LUT equivalents the place-and-route adds per carry chain (``[logic]
     # chain_end_luts``; 0 where not measured)
     chain_end_luts: int = 0
+    # a carry bit whose propagate signal is a plain wire (an increment) needs no LUT
+    # (``[logic] free_increment``: the carry cell computes the sum bit itself)
+    free_increment: bool = False
     sources: dict = field(default_factory=dict, repr=False, compare=False)
     # how close the estimates came to the synthesis tools on this profile, as measured
     # (``"luts"``, ``"fmax"``: text with its source in ``sources["accuracy.<key>"]``)
@@ -277,6 +289,8 @@ _MULT_KEYS = (
     "accumulator_bits",
     "absorbs_output_register",
     "absorbs_post_adder",
+    "block_registers",
+    "absorbs_pre_adder",
 )
 _PASS_KEYS = (
     "a_bits",
@@ -311,6 +325,7 @@ _SYNTH_KEYS = (
     "ff_cells",
     "dsp_cells",
     "placed_luts",
+    "sim_models",
     "multiplier_pass",
 )
 
@@ -506,11 +521,14 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         accumulator_bits=m.integer("accumulator_bits", 0),
         absorbs_output_register=m.flag("absorbs_output_register"),
         absorbs_post_adder=m.flag("absorbs_post_adder"),
+        block_registers=m.integer("block_registers", 0) if "block_registers" in m.table else 0,
+        absorbs_pre_adder="absorbs_pre_adder" in m.table and m.flag("absorbs_pre_adder"),
     )
 
-    lg = top.sub("logic", ("carry_bits_per_cell", "chain_end_luts"))
+    lg = top.sub("logic", ("carry_bits_per_cell", "chain_end_luts", "free_increment"))
     carry = lg.integer("carry_bits_per_cell", 1)
     chain_end = lg.integer("chain_end_luts", 0) if "chain_end_luts" in lg.table else 0
+    free_increment = "free_increment" in lg.table and lg.flag("free_increment")
 
     d = top.sub("delay", _DELAY_KEYS)
     delay = DelayModel(**{k: d.delay(k) for k in _DELAY_KEYS})
@@ -531,6 +549,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         ff_cells=s.strings("ff_cells"),
         dsp_cells=s.weights("dsp_cells"),
         placed_luts=s.string("placed_luts", default=""),
+        sim_models=s.string("sim_models", default=""),
     )
     passes = _passes(src, s, block)
     accuracy = {}
@@ -565,6 +584,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         mapping=passes,
         carry_bits_per_cell=carry,
         chain_end_luts=chain_end,
+        free_increment=free_increment,
         delay=delay,
         synthesis=flow,
         default_clock_mhz=clock,

@@ -327,6 +327,7 @@ class _Leaf:
     late: bool = False
     part: bool = False  # read from above its lowest bit (its low bits pass around)
     alone: bool = True  # no identical product was merged with it (it has one reader)
+    node: str = ""  # the graph node read (a word read whole), for register packing
 
 
 @dataclass
@@ -474,6 +475,10 @@ def estimate(
                 absorbed += ff.by_register.get(_reg_name(hp, name), {}).get("kept", 0)
         # state registers load with an enable (the sample strobe): the flows do not pack
         # them into the blocks (observed for iCE40 and 6-input-LUT parts)
+    depth = profile.multiplier.block_registers
+    if depth and multipliers == "auto":
+        for name in model.block_registers_absorbed(depth):
+            absorbed += ff.by_register.get(name, {}).get("kept", 0)
     if absorbed:
         rb["absorbed"] = -absorbed
     registers = sum(rb.values())
@@ -635,6 +640,8 @@ class _Model:
         # the addition it takes into a block: see _tree_cost and _gain
         self.ice40_dsp = self.adder_trees and profile.family == "ice40"
         self._used_blocks: set[str] = set()
+        self.pre_adds: set[str] = set()
+        self.post_adds: dict[str, str] = {}  # sum in a block -> the word the block adds
         self.times: dict[str, float] = {}
         self.luts = 0.0
         self.lut_detail = {"sums": 0.0, "quantizers": 0.0, "multipliers": 0.0}
@@ -708,6 +715,7 @@ class _Model:
         for n in g.of_kind("gain"):
             if n.name not in self.dead:
                 self._gain(n)
+        self.pre_adds = self._pre_adders()
         self._group_sums()
         self._sum_costs()
         for n in g.of_kind("quantize"):
@@ -771,6 +779,85 @@ class _Model:
             )
         )
 
+    def block_registers_absorbed(self, depth: int) -> set[str]:
+        """Delays that leave the fabric when the flow copies up to ``depth`` registers in
+        series before each block multiplier's data input into the block.
+
+        Yosys ``xilinx_dsp`` (AREG/BREG, DREG behind a pre-adder) takes the register
+        driving a block's input, then the register driving that one, into the block,
+        whatever else reads them (a copy per block). A delay stays in the fabric while its
+        word is read there: by a node that is not a block multiplier or an absorbed
+        pre-adder (an adder, a quantizer, a product with chunks in logic), by a block
+        whose copies stop before it, or by a delay that stays. Identical delays are one
+        register (the tool merges them) read by all their readers.
+        """
+        g = self.g
+        rep = self.rep
+        delays = {rep[n.name] for n in g.of_kind("delay")}
+        readers: dict[str, list] = {d: [] for d in delays}
+        for n in g.of_kind("delay"):
+            readers[rep[n.name]] += [u for u in g.users(n.name) if u.name not in self.dead]
+
+        def block(u):
+            m = self._maps.get(rep.get(u.name, u.name))
+            return u.kind == "gain" and m is not None and m.cells > 0 and not m.logic_parts
+
+        # a sum the block adds, stored whole by a delay: that register is the block's
+        # output register (PREG, moved); the word it adds, when a delay, is copied into
+        # the block (CREG)
+        moved = set()
+        adds_c = {}
+        for root, other in self.post_adds.items():
+            users = [u for u in g.users(root) if u.name not in self.dead]
+            if len(users) == 1 and users[0].kind == "delay":
+                moved.add(rep[users[0].name])
+            if other and other in rep and rep[other] in delays:
+                adds_c[root] = rep[other]
+        c_readers = set(adds_c)
+        read_here = set()  # words read from the fabric by blocks, past their copies
+        stays = set()
+        for d in delays:
+            for u in readers[d]:
+                if u.name in c_readers and adds_c[u.name] == d:
+                    continue  # copied into the block as its C register
+                if block(u) or u.name in self.pre_adds:
+                    # behind a pre-adder one register (DREG/A2) is copied (counted so)
+                    src = d
+                    for _ in range(depth if block(u) else 1):
+                        if src not in delays:
+                            break
+                        src = rep[g[src].inputs[0]]
+                    read_here.add(src)
+                elif u.kind != "delay":
+                    stays.add(d)
+        stays |= read_here & delays
+        changed = True
+        while changed:  # a delay read by a delay that stays stays too
+            changed = False
+            for d in delays - stays:
+                if any(u.kind == "delay" and rep[u.name] in stays for u in readers[d]):
+                    stays.add(d)
+                    changed = True
+        return {d for d in delays - stays if readers[d]} | moved
+
+    def _pre_adders(self) -> set[str]:
+        """Two-input sums the flow takes into a block's pre-adder (Yosys ``xilinx_dsp``):
+        the sum is read by one single-block multiplier alone and fits the block's
+        ``a_bits`` operand."""
+        out = set()
+        if not (self.p.multiplier.absorbs_pre_adder and self.mode == "auto"):
+            return out
+        for n in self.g.of_kind("add"):
+            r = self._only_reader(n.name)
+            if (
+                len(n.inputs) == 2
+                and r is not None
+                and self.single_block(r.name)
+                and n.format.bits <= self.p.multiplier.a_bits
+            ):
+                out.add(n.name)
+        return out
+
     def _in_logic(self, name: str) -> bool:
         """A gain built from rows (a logic or shift-add multiplier, a shift, a negation)."""
         n = self.g[name]
@@ -804,6 +891,7 @@ class _Model:
             if n.name not in self._merged_adds
             and self.rep[n.name] == n.name
             and n.name not in self.dead
+            and n.name not in self.pre_adds  # inside the block
         ]
         # logic products whose reader is not a sum are sums of their own rows
         for n in g.of_kind("gain"):
@@ -858,7 +946,9 @@ class _Model:
                     leaf = _Leaf(lo, off + sn.format.bits, tiled=src, tiles=m.tiles)
                 else:
                     late = sn.kind in ("add", "quantize")  # out of a carry chain
-                    leaf = _Leaf(lo, off + sn.format.bits, dsp=dsp, late=late, alone=alone)
+                    leaf = _Leaf(
+                        lo, off + sn.format.bits, dsp=dsp, late=late, alone=alone, node=src
+                    )
                 out.append((sign, leaf))
         return out
 
@@ -965,20 +1055,23 @@ class _Model:
             and len(leaves) == 2
             and width <= max(self.p.multiplier.accumulator_bits, 1)
         ):
-            dsp = [leaf for leaf in leaves if leaf.dsp and leaf.dsp not in self._used_blocks]
+            # Yosys ice40_dsp and xilinx_dsp take an $add (not a subtraction) that reads
+            # the product whole from its lowest bit, the product's only reader
+            dsp = [
+                leaf
+                for leaf in leaves
+                if leaf.dsp and leaf.alone and not leaf.part and leaf.dsp not in self._used_blocks
+            ]
             if self.ice40_dsp:
-                # ice40_dsp takes an $add (not a subtraction) that reads the product
-                # whole from its lowest bit, the product's only reader
-                dsp = [
-                    leaf
-                    for leaf in dsp
-                    if not leaf.part and leaf.alone and self._full_width(leaf.dsp, width)
-                ]
-                if any(leaf.negated for leaf in leaves):
-                    dsp = []
+                dsp = [leaf for leaf in dsp if self._full_width(leaf.dsp, width)]
+            if any(leaf.negated for leaf in leaves):
+                dsp = []
             if dsp:
                 # the product's block adds the other word: no logic, the block's delay
                 self._used_blocks.add(dsp[0].dsp)
+                if root:
+                    other = next(leaf for leaf in leaves if leaf is not dsp[0])
+                    self.post_adds[root] = other.node if not other.part else ""
                 return luts, child_time + self.d.routing
         own, t = self._cluster(leaves, width, absorb=bool(root) and not self.adder_trees)
         if root and self._absorbed_here:
@@ -1059,20 +1152,29 @@ class _Model:
         rbits = bits_for_range(rlo, rhi)
         if k > 0 and q.rounding != "floor":
             if q.rounding == "half-up":
-                # an incrementer on the bits from k - 1 up
+                # an incrementer on the bits from k - 1 up (on a carry cell that makes
+                # the sum bit itself, the bits need no LUT: the profile's free_increment)
                 width = (rbits if sat else q.format.bits) + 1
+                if self.p.free_increment:
+                    width = 0
             else:
                 # a word reaching down to bit 0 is added (the sign or the kept LSB
                 # chooses it)
                 width = (rbits if sat else q.format.bits) + k
             width = min(width, src.format.bits + 1)
             self._add_luts("quantizers", width, chains=1)
-            t += self.d.routing + self.carry(width)
+            t += self.d.routing + self.carry(width or rbits)
         if sat:
             # two comparisons over the rounded word (one carry chain's worth) and one LUT
             # per output bit for the choice between the word and the two limits
             # (measured on Yosys 0.70 synth_ecp5 netlists, see docs/estimates.md)
             # one of the comparisons is a carry chain (Yosys 0.70 netlists)
-            self._add_luts("quantizers", rbits + q.format.bits, chains=1)
+            cmp = rbits
+            if self.p.free_increment:
+                # comparisons with constants on such a carry cell need LUTs only for
+                # the bits above the word (probes on Yosys 0.70 synth_xilinx: about two
+                # per bit; docs/estimates.md)
+                cmp = 2 * max(rbits - q.format.bits, 0)
+            self._add_luts("quantizers", cmp + q.format.bits, chains=1)
             t += self.d.routing + self.carry(rbits) + self.d.routing + self.d.lut
         self.times[q.name] = t

