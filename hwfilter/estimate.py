@@ -831,17 +831,17 @@ class _Model:
                 moved.add(rep[users[0].name])
             if other and other in rep and rep[other] in delays:
                 adds_c[root] = rep[other]
-        c_readers = set(adds_c)
         read_here = set()  # words read from the fabric by blocks, past their copies
         stays = set()
         for d in delays:
             for u in readers[d]:
-                if u.name in c_readers and adds_c[u.name] == d:
+                if adds_c.get(u.name) == d:
                     continue  # copied into the block as its C register
-                if block(u) or u.name in self.pre_adds:
+                copies = depth if block(u) else 1 if u.name in self.pre_adds else 0
+                if copies:
                     # behind a pre-adder one register (DREG/A2) is copied (counted so)
                     src = d
-                    for _ in range(depth if block(u) else 1):
+                    for _ in range(copies):
                         if src not in delays:
                             break
                         src = rep[g[src].inputs[0]]

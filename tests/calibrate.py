@@ -170,8 +170,8 @@ def main(argv=None):
             print(f"| {r['filter']} | {r['form']} | {r['section'] or ''} | error: {r['error']} |")
             continue
         if r.get("netlist") is False:
-            # Yosys's netlist computes other words than the design (a synthesis bug,
-            # shown by simulating it): its counts are listed, not held to the bounds
+            # Yosys's netlist computes other words than the design in simulation (a
+            # defect of the tool or its cell models): listed, not held to the bounds
             miscompiled.append(f"{r['filter']} {r['form']} {r['section']}".strip())
             b, f, lut = r["multiplier blocks"], r["flip-flops"], r["LUTs"]
             print(

@@ -227,11 +227,15 @@ def run_iverilog(
     pipelining: str = "none",
     expected=None,
     workdir: str | os.PathLike | None = None,
+    verilog: str | None = None,
+    libraries: tuple = (),
 ) -> RunResult:
     """Run the emitted Verilog and testbench under Icarus Verilog (``iverilog -g2005``).
 
     ``expected`` defaults to the reference model's output. The testbench writes every
-    output word; its own pass/fail line is kept in ``summary``.
+    output word; its own pass/fail line is kept in ``summary``. ``verilog`` replaces the
+    emitted core (a synthesized netlist of it), ``libraries`` are further source files
+    (the cell models such a netlist needs).
     """
     iverilog = shutil.which("iverilog")
     vvp = shutil.which("vvp")
@@ -241,9 +245,12 @@ def run_iverilog(
     if expected is None:
         expected = simulate_integer(graph, x).output
     with _workdir(workdir) as wd:
-        files = write_testbench_files(graph, wd, x, expected, pipelining=pipelining, verilog=None)
+        files = write_testbench_files(
+            graph, wd, x, expected, pipelining=pipelining, verilog=verilog
+        )
         r = _run(
-            [iverilog, "-g2005", "-o", "tb.vvp", files["testbench"], files["verilog"]],
+            [iverilog, "-g2005", "-o", "tb.vvp", files["testbench"], files["verilog"]]
+            + [str(lib) for lib in libraries],
             wd,
             "iverilog",
         )
