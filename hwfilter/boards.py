@@ -119,15 +119,19 @@ class SynthesisFlow:
     ``yosys`` is the Yosys synthesis command (``synth_ecp5``); ``no_dsp_option`` the
     option that keeps multipliers in logic (empty: the command's default); ``dsp_option``
     the option that enables hard multipliers (empty: on by default); ``nextpnr`` names
-    the place-and-route tool from PyPI (``ecp5``, ``ice40``) or is empty when none
-    exists; ``adder_trees_with_dsp``: the flow with hard multipliers splits
-    multi-operand sums into two-input adders (no compressor trees); ``lut_cells``
-    weighs cell types as LUT equivalents (``CCU2C = 2``); ``dsp_cells`` weighs hard
-    multiplier cells as blocks; ``placed_luts`` names the entry of nextpnr's
-    utilization report that counts LUTs on the device (``TRELLIS_COMB``; empty: the
-    placed count is not compared); ``sim_models``: the file of Yosys's cell simulation
-    models for the family (relative to Yosys's share folder, ``xilinx/cells_sim.v``;
-    empty: the netlist cannot be simulated, as where the hard multiplier has no model).
+    the place-and-route tool from PyPI (``ecp5``, ``ice40``, ``himbaechel-gowin``: the
+    tool is ``yowasp-nextpnr-<nextpnr>``) or is empty when none exists;
+    ``pin_constraints`` is the text of a pin file for the timing wrapper's seven pins,
+    written as ``pins.cst`` beside the netlist (for a tool that will not place
+    unconstrained pins; ``nextpnr_args`` names the file); ``adder_trees_with_dsp``: the
+    flow with hard multipliers splits multi-operand sums into two-input adders (no
+    compressor trees); ``lut_cells`` weighs cell types as LUT equivalents (``CCU2C =
+    2``); ``dsp_cells`` weighs hard multiplier cells as blocks; ``placed_luts`` names the
+    entries of nextpnr's utilization report that count LUTs on the device
+    (``TRELLIS_COMB``; Gowin: ``LUT4`` and ``ALU``; empty: the placed count is not
+    compared); ``sim_models``: the file of Yosys's cell simulation models for the family
+    (relative to Yosys's share folder, ``xilinx/cells_sim.v``; empty: the netlist cannot
+    be simulated, as where the hard multiplier has no model).
     """
 
     yosys: str
@@ -140,8 +144,9 @@ class SynthesisFlow:
     lut_cells: dict
     ff_cells: tuple[str, ...]
     dsp_cells: dict
-    placed_luts: str = ""
+    placed_luts: tuple[str, ...] = ()
     sim_models: str = ""
+    pin_constraints: str = ""
 
 
 @dataclass(frozen=True)
@@ -175,6 +180,12 @@ class DeviceProfile:
     # a carry bit whose propagate signal is a plain wire (an increment) needs no LUT
     # (``[logic] free_increment``: the carry cell computes the sum bit itself)
     free_increment: bool = False
+    # a flip-flop takes its data only from the LUT beside it (``[logic]
+    # register_route_through``): one loaded from another flip-flop, an input, a hard
+    # multiplier or a word another flip-flop takes gets a LUT as a route-through, and
+    # ``carry_route_through`` of those loaded from a carry-chain sum
+    register_route_through: bool = False
+    carry_route_through: float = 0.0
     sources: dict = field(default_factory=dict, repr=False, compare=False)
     # how close the estimates came to the synthesis tools on this profile, as measured
     # (``"luts"``, ``"fmax"``: text with its source in ``sources["accuracy.<key>"]``)
@@ -313,6 +324,8 @@ _DELAY_KEYS = (
     "setup",
     "clock_to_out",
 )
+#: place-and-route tools from PyPI, as ``yowasp-nextpnr-<name>``
+_NEXTPNR = ("", "ecp5", "ice40", "himbaechel-gowin")
 _SYNTH_KEYS = (
     "yosys",
     "dsp_option",
@@ -326,6 +339,7 @@ _SYNTH_KEYS = (
     "dsp_cells",
     "placed_luts",
     "sim_models",
+    "pin_constraints",
     "multiplier_pass",
 )
 
@@ -525,18 +539,38 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         absorbs_pre_adder="absorbs_pre_adder" in m.table and m.flag("absorbs_pre_adder"),
     )
 
-    lg = top.sub("logic", ("carry_bits_per_cell", "chain_end_luts", "free_increment"))
+    lg = top.sub(
+        "logic",
+        (
+            "carry_bits_per_cell",
+            "chain_end_luts",
+            "free_increment",
+            "register_route_through",
+            "carry_route_through",
+        ),
+    )
     carry = lg.integer("carry_bits_per_cell", 1)
     chain_end = lg.integer("chain_end_luts", 0) if "chain_end_luts" in lg.table else 0
     free_increment = "free_increment" in lg.table and lg.flag("free_increment")
+    route_through = "register_route_through" in lg.table and lg.flag("register_route_through")
+    carry_route = 0.0
+    if "carry_route_through" in lg.table:
+        carry_route = lg.delay("carry_route_through")
+        if carry_route > 1:
+            raise lg.error("carry_route_through", f"value must be at most 1, not {carry_route!r}")
 
     d = top.sub("delay", _DELAY_KEYS)
     delay = DelayModel(**{k: d.delay(k) for k in _DELAY_KEYS})
 
     s = top.sub("synthesis", _SYNTH_KEYS)
     nextpnr = s.string("nextpnr", default="")
-    if nextpnr not in ("", "ecp5", "ice40"):
-        raise s.error("nextpnr", f"must be ecp5, ice40 or empty, not {nextpnr!r}")
+    if nextpnr not in _NEXTPNR:
+        raise s.error(
+            "nextpnr",
+            f"must be one of {', '.join(n for n in _NEXTPNR if n)} or empty, not {nextpnr!r}",
+        )
+    placed = s.table.get("placed_luts", [])
+    placed = s.strings("placed_luts") if not isinstance(placed, str) else (placed,)
     flow = SynthesisFlow(
         yosys=s.string("yosys"),
         dsp_option=s.string("dsp_option", default=""),
@@ -548,8 +582,9 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         lut_cells=s.weights("lut_cells"),
         ff_cells=s.strings("ff_cells"),
         dsp_cells=s.weights("dsp_cells"),
-        placed_luts=s.string("placed_luts", default=""),
+        placed_luts=tuple(c for c in placed if c),
         sim_models=s.string("sim_models", default=""),
+        pin_constraints=s.string("pin_constraints", default=""),
     )
     passes = _passes(src, s, block)
     accuracy = {}
@@ -585,6 +620,8 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         carry_bits_per_cell=carry,
         chain_end_luts=chain_end,
         free_increment=free_increment,
+        register_route_through=route_through,
+        carry_route_through=carry_route,
         delay=delay,
         synthesis=flow,
         default_clock_mhz=clock,

