@@ -4,13 +4,16 @@
                                         [--jobs 2]
                                         [--sets calibration,validation,registered,holdout]
                                         [--json results.json] [--only lp4,fir15]
+                                        [--fit-delays lut,carry_entry,carry_per_bit]
 
 Prints one markdown table row per design (estimate / tool and the ratio) and a summary
 of the bounds (blocks exact, flip-flops within 5 %, LUTs within 25 %, Fmax within 25 %).
 Tool results are cached by content (see hwfilter.synth), so a rerun after a change to the
 estimator alone takes seconds. The slow tests in test_synth.py hold the calibration set
 to the bounds; this script also covers the validation filters, which the model was not
-fitted on.
+fitted on. ``--fit-delays`` fits the named delays of the profile by least squares on
+log(estimated / nextpnr critical path) over the designs placed (the others as in the
+profile) and prints the fitted values and the ratios they give.
 """
 
 from __future__ import annotations
@@ -123,6 +126,56 @@ def run_one(args):
     return row
 
 
+def fit_delays(rows, specs, device, names):
+    """Least-squares fit of the profile's delays ``names`` to nextpnr's critical paths."""
+    from dataclasses import replace
+
+    import numpy as np
+    from scipy.optimize import minimize
+
+    from hwfilter.boards import load_profile
+    from hwfilter.estimate import estimate
+    from hwfilter.pipeline import quantized_graph
+
+    profile = load_profile(device)
+    cases = []
+    for r in rows:
+        key = (
+            "critical path ns (no DSP)" if "critical path ns (no DSP)" in r else "critical path ns"
+        )
+        if key not in r or not r[key][1] or r.get("netlist") is False:
+            continue
+        g = quantized_graph(specs[r["filter"]], form=r["form"], section=r["section"] or None)
+        mode = "logic" if "(no DSP)" in key else "auto"
+        cases.append((g, r["pipelining"], mode, r[key][1]))
+    start = np.array([getattr(profile.delay, n) for n in names])
+
+    def paths(x):
+        delay = replace(profile.delay, **dict(zip(names, np.maximum(x, 0.0))))
+        p = replace(profile, delay=delay)
+        return [
+            estimate(g, p, pipelining=pipe, multipliers=mode).critical_path_ns / tool
+            for g, pipe, mode, tool in cases
+        ]
+
+    def cost(x):
+        return float(sum(np.log(r) ** 2 for r in paths(x)))
+
+    res = minimize(cost, start, method="Nelder-Mead", options={"xatol": 1e-3, "fatol": 1e-4})
+    fitted = np.maximum(res.x, 0.0)
+    ratios = [1 / r for r in paths(fitted)]  # Fmax ratio = tool path / estimated path
+    print(
+        f"\nfitted on {len(cases)} placed designs: "
+        + ", ".join(f"{n} = {v:.3f}" for n, v in zip(names, fitted))
+    )
+    inside = sum(abs(r - 1) <= 0.25 for r in ratios)
+    print(
+        f"Fmax ratios with them: {min(ratios):.2f} to {max(ratios):.2f}, "
+        f"median {statistics.median(ratios):.2f}, {inside} of {len(ratios)} within 25 %"
+    )
+    return dict(zip(names, fitted))
+
+
 def _ratio(pair):
     e, t = pair
     return e / t if t else None
@@ -141,6 +194,7 @@ def main(argv=None):
     ap.add_argument("--sets", default="calibration,validation,registered")
     ap.add_argument("--json", type=Path)
     ap.add_argument("--only", help="filter names to run, comma-separated (default: all)")
+    ap.add_argument("--fit-delays", help="delay keys to fit, comma-separated")
     a = ap.parse_args(argv)
     only = set(a.only.split(",")) if a.only else None
     work = [
@@ -238,6 +292,9 @@ def main(argv=None):
         )
     else:
         print()
+    if a.fit_delays:
+        specs = {s.name: s for s, *_ in cases(a.sets.split(","))}
+        fit_delays(rows, specs, a.device, a.fit_delays.split(","))
     if miscompiled:
         print(
             f"not held to the bounds ({len(miscompiled)}): Yosys's netlist differs from the "
