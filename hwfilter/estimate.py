@@ -81,6 +81,12 @@ class ProductMap:
     tiles: tuple = ()
     # per partial adder: one of its two words is a tile's own product (not a sum)
     raw_tile_adders: tuple = ()
+    # the operands the product brings to a sum its tiles join: the offsets of the cells
+    # the first pass mapped, and one per chunk it left to a later pass (that chunk is a
+    # product of its own, whose tile adders stay apart)
+    merge_tiles: tuple = ()
+    # widths of the adders inside such chunks (they stay when the tiles join a sum)
+    nested_adders: tuple = ()
 
 
 def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
@@ -89,13 +95,26 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
     Follows the rules of :class:`~hwfilter.boards.MappingPass`: a product left by one pass
     (too narrow) is offered to the next; what is left after the last pass is logic.
     """
-    pending = [(a_bits, b_bits, y_bits, True, True, 0)]
+    # the last field: the item is a chunk of a product split by an earlier pass
+    pending = [(a_bits, b_bits, y_bits, True, True, 0, False)]
     blocks, cells, adders, levels, tiles, raw = 0.0, 0, [], 0, [], []
+    merge, nested = [], []
     for p in passes:
         out = _PassResult()
-        for a, b, y, sa, sb, off in pending:
+        chunk = []
+        for a, b, y, sa, sb, off, inner in pending:
+            n_add, n_left, n_tiles = len(out.adders), len(out.left), len(out.tiles)
             depth = _map_cell(a, b, y, sa, sb, top=True, p=p, out=out, off=off)
             levels = max(levels, depth)
+            split = len(out.adders) > n_add
+            if inner:
+                nested += out.adders[n_add:]
+            else:
+                merge += out.tiles[n_tiles:]
+            for item in out.left[n_left:]:
+                chunk.append(inner or split)
+                if split and not inner:
+                    merge.append(item[5])  # the chunk joins as one operand
         blocks += out.cells * p.blocks
         cells += out.cells
         adders += out.adders
@@ -104,12 +123,22 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
         # a product the pass leaves becomes a plain product again; a mixed-signedness
         # one takes a bit for the unsigned operand (as Yosys's soft multiplier does)
         pending = []
-        for a, b, y, sa, sb, off in out.left:
+        for (a, b, y, sa, sb, off), inner in zip(out.left, chunk):
             if sa != sb:
                 a, b = (a + 1, b) if not sa else (a, b + 1)
-            pending.append((a, b, y, True, True, off))
-    logic = tuple((a, b) for a, b, _, _, _, _ in pending)
-    return ProductMap(blocks, cells, logic, tuple(adders), levels, tuple(sorted(tiles)), tuple(raw))
+            pending.append((a, b, y, True, True, off, inner))
+    logic = tuple((a, b) for a, b, *_ in pending)
+    return ProductMap(
+        blocks,
+        cells,
+        logic,
+        tuple(adders),
+        levels,
+        tuple(sorted(tiles)),
+        tuple(raw),
+        tuple(sorted(merge)),
+        tuple(nested),
+    )
 
 
 class _PassResult:
@@ -765,10 +794,17 @@ class _Model:
         return name in self._absorbed_sums
 
     def _merge_tiles(self, name: str):
-        """A product whose tiles join the sum that reads it: no adders of its own."""
+        """A product whose tiles join the sum that reads it: no adders of its own, but
+        those inside a chunk a later pass mapped (a product of its own, read whole)."""
         m = self._maps[self.rep.get(name, name)]
-        self._add_luts("multipliers", -sum(m.partial_adders), chains=-len(m.partial_adders))
-        self.times[name] = self.d.routing + self.d.multiplier
+        top = len(m.partial_adders) - len(m.nested_adders)
+        self._add_luts(
+            "multipliers", -(sum(m.partial_adders) - sum(m.nested_adders)), chains=-top
+        )
+        t = self.d.routing + self.d.multiplier
+        if m.nested_adders:
+            t += self.d.routing + self.carry(max(m.nested_adders))
+        self.times[name] = t
 
     def _full_width(self, name: str, width: int) -> bool:
         """ice40_dsp's width rule: a sum wider than the product it takes into the block
@@ -1032,7 +1068,7 @@ class _Model:
                 m = self._maps.get(r)
                 alone = self._copies[r] == 1  # no identical product merged with it
                 if only and alone and m is not None and len(m.tiles) > 1 and not m.logic_parts:
-                    leaf = _Leaf(lo, off + sn.format.bits, tiled=src, tiles=m.tiles)
+                    leaf = _Leaf(lo, off + sn.format.bits, tiled=src, tiles=m.merge_tiles)
                 else:
                     late = sn.kind in ("add", "quantize")  # out of a carry chain
                     leaf = _Leaf(
