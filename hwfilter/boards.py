@@ -123,7 +123,9 @@ class SynthesisFlow:
     tool is ``yowasp-nextpnr-<nextpnr>``) or is empty when none exists;
     ``pin_constraints`` is the text of a pin file for the timing wrapper's seven pins,
     written as ``pins.cst`` beside the netlist (for a tool that will not place
-    unconstrained pins; ``nextpnr_args`` names the file); ``adder_trees_with_dsp``: the
+    unconstrained pins; ``nextpnr_args`` names the file); ``timing_not_checked``: why the
+    place-and-route's timing is not used for this family (set: it places for the LUT
+    count only); ``adder_trees_with_dsp``: the
     flow with hard multipliers splits multi-operand sums into two-input adders (no
     compressor trees); ``lut_cells`` weighs cell types as LUT equivalents (``CCU2C =
     2``); ``dsp_cells`` weighs hard multiplier cells as blocks; ``placed_luts`` names the
@@ -147,6 +149,7 @@ class SynthesisFlow:
     placed_luts: tuple[str, ...] = ()
     sim_models: str = ""
     pin_constraints: str = ""
+    timing_not_checked: str = ""
 
 
 @dataclass(frozen=True)
@@ -340,6 +343,7 @@ _SYNTH_KEYS = (
     "placed_luts",
     "sim_models",
     "pin_constraints",
+    "timing_not_checked",
     "multiplier_pass",
 )
 
@@ -585,6 +589,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         placed_luts=tuple(c for c in placed if c),
         sim_models=s.string("sim_models", default=""),
         pin_constraints=s.string("pin_constraints", default=""),
+        timing_not_checked=" ".join(s.string("timing_not_checked", default="").split()),
     )
     passes = _passes(src, s, block)
     accuracy = {}

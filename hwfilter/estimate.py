@@ -798,9 +798,7 @@ class _Model:
         those inside a chunk a later pass mapped (a product of its own, read whole)."""
         m = self._maps[self.rep.get(name, name)]
         top = len(m.partial_adders) - len(m.nested_adders)
-        self._add_luts(
-            "multipliers", -(sum(m.partial_adders) - sum(m.nested_adders)), chains=-top
-        )
+        self._add_luts("multipliers", -(sum(m.partial_adders) - sum(m.nested_adders)), chains=-top)
         t = self.d.routing + self.d.multiplier
         if m.nested_adders:
             t += self.d.routing + self.carry(max(m.nested_adders))

