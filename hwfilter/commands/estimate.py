@@ -217,12 +217,11 @@ def render_estimate(e, profile) -> str:
         f"  multipliers       {e.multipliers} (and {e.shifts} power-of-two gains as shifts); "
         f"{e.adders} two-input adders; {e.delays} delays",
         f"  multiplier blocks {e.dsp_blocks:g} of {profile.multipliers}",
-        f"  LUTs              {e.luts} of {profile.luts} (sums {e.lut_detail['sums']}, "
-        f"quantizers {e.lut_detail['quantizers']}, multipliers {e.lut_detail['multipliers']}"
-        + (
-            f", carry chain ends {e.lut_detail['carry chain ends']}"
-            if e.lut_detail.get("carry chain ends")
-            else ""
+        f"  LUTs              {e.luts} of {profile.luts} ("
+        + ", ".join(
+            f"{k} {v}"
+            for k, v in e.lut_detail.items()
+            if v or k in ("sums", "quantizers", "multipliers")
         )
         + ")",
         f"  flip-flops        {e.registers} of {profile.flip_flops} ("
