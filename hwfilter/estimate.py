@@ -641,7 +641,10 @@ def _register_feeds(graph: Graph, hp, ff, model) -> Counter:
     ``register_route_through``), the place-and-route gives each of the first kind a LUT
     as a route-through, and some of the second (``carry_route_through``).
     """
-    registered = {r.source for r in hp.pipeline_registers if r.kind == "product"}
+    registered = hp.registered  # products with a register after them
+
+    def block(src: str) -> bool:
+        return model.mode == "auto" and model.single_block(src)
 
     def feed(name: str) -> tuple[str, str]:
         """(kind, word) of what computes ``name``, through wiring (shifts, plain
@@ -652,9 +655,7 @@ def _register_feeds(graph: Graph, hp, ff, model) -> Counter:
                 return "register", name
             if n.kind == "gain":
                 if _is_multiplier(n):
-                    if model.mode == "auto" and model.single_block(name):
-                        return "register", name
-                    return "carry", name
+                    return ("register" if block(name) else "carry"), name
                 if n.value == 0 or n.value < 0:
                     return "lut", name
                 name = n.inputs[0]
@@ -668,9 +669,6 @@ def _register_feeds(graph: Graph, hp, ff, model) -> Counter:
                 name = n.inputs[0]
             else:  # output
                 name = n.inputs[0]
-
-    def block(src: str) -> bool:
-        return model.mode == "auto" and model.single_block(src)
 
     out: Counter = Counter()
     taken: set[str] = set()

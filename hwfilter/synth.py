@@ -665,8 +665,8 @@ def cross_check(
 
     Resources (multiplier blocks, LUTs, flip-flops) come from Yosys with hard multipliers;
     timing (critical path, Fmax) from nextpnr when PyPI has one for the family and
-    ``timing`` is set. For a family whose timing netlist has no DSP mapping (iCE40,
-    Gowin), the timing rows compare with an estimate whose multipliers are logic.
+    ``timing`` is set. For a family whose timing netlist has no DSP mapping (iCE40), the
+    timing rows compare with an estimate whose multipliers are logic.
     ``placement`` (default: as ``timing``) adds the LUTs nextpnr places for the design
     with hard multipliers, where the profile names them (``placed_luts``). A profile
     whose ``timing_not_checked`` gives a reason is placed for that count only.
@@ -757,9 +757,9 @@ def cross_check(
             label = " (no DSP)"
             notes.append(
                 f"nextpnr-{flow.nextpnr} does not time combinational paths through the DSP "
-                "blocks (it models them as registered, or gives them no delay arcs), so its "
-                "Fmax for them means nothing: timing is checked on a netlist synthesized "
-                "without DSP mapping, against an estimate with multipliers in logic"
+                "blocks (it models them as registered), so its Fmax for them means nothing: "
+                "timing is checked on a netlist synthesized without DSP mapping, against an "
+                "estimate with multipliers in logic"
             )
             rows.append(Comparison(f"LUTs{label}", test.luts, t.synth.luts))
         rows.append(

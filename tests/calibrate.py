@@ -142,7 +142,7 @@ def fit_delays(rows, specs, device, names):
     from hwfilter.pipeline import quantized_graph
 
     profile = load_profile(device)
-    cases = []
+    designs = []
     for r in rows:
         key = (
             "critical path ns (no DSP)" if "critical path ns (no DSP)" in r else "critical path ns"
@@ -151,7 +151,7 @@ def fit_delays(rows, specs, device, names):
             continue
         g = quantized_graph(specs[r["filter"]], form=r["form"], section=r["section"] or None)
         mode = "logic" if "(no DSP)" in key else "auto"
-        cases.append((g, r["pipelining"], mode, r[key][1]))
+        designs.append((g, r["pipelining"], mode, r[key][1]))
     start = np.array([getattr(profile.delay, n) for n in names])
 
     def paths(x):
@@ -159,7 +159,7 @@ def fit_delays(rows, specs, device, names):
         p = replace(profile, delay=delay)
         return [
             estimate(g, p, pipelining=pipe, multipliers=mode).critical_path_ns / tool
-            for g, pipe, mode, tool in cases
+            for g, pipe, mode, tool in designs
         ]
 
     def cost(x):
@@ -169,7 +169,7 @@ def fit_delays(rows, specs, device, names):
     fitted = np.maximum(res.x, 0.0)
     ratios = [1 / r for r in paths(fitted)]  # Fmax ratio = tool path / estimated path
     print(
-        f"\nfitted on {len(cases)} placed designs: "
+        f"\nfitted on {len(designs)} placed designs: "
         + ", ".join(f"{n} = {v:.3f}" for n, v in zip(names, fitted))
     )
     inside = sum(abs(r - 1) <= 0.25 for r in ratios)
@@ -192,7 +192,7 @@ def main(argv=None):
     ap.add_argument(
         "--placed-only",
         action="store_true",
-        help="place for the LUT count, no timing (Gowin's no-DSP timing runs take minutes)",
+        help="place for the LUT count (profiles with placed_luts), no timing run",
     )
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--sets", default="calibration,validation,registered")
