@@ -158,6 +158,29 @@ def test_no_place_and_route_for_the_generic_part():
         synth.place_and_route("", "t", 16, 16, load_profile("generic-lut6-dsp25x18"))
 
 
+def test_timing_netlist_that_cannot_be_placed_leaves_the_check_standing(monkeypatch):
+    # a netlist with multipliers in logic can outgrow a small part (iCE40: the bp6
+    # parallel direct form II netlist did, docs/estimates.md): the resource rows stay and
+    # a note says why timing is missing, where the whole check used to fail
+    g = quantized("direct-form-2", [0.3, -0.27, 0.21], [1.0, -1.1, 0.45])
+    p = load_profile("ice40-up5k")
+
+    def fake_synthesize(verilog, top, profile, **kw):
+        return synth.SynthResult(profile.family, "synth_ice40", True, {}, 100.0, 65, 5.0)
+
+    def fake_place(*args, **kw):
+        raise synth.ToolError("nextpnr failed:\nERROR: Unable to place cell 'x'\n1 error")
+
+    monkeypatch.setattr(synth, "synthesize", fake_synthesize)
+    monkeypatch.setattr(synth, "place_and_route", fake_place)
+    cc = synth.cross_check(g, p, **QUIET)
+    assert [r.metric for r in cc.rows] == ["multiplier blocks", "LUTs", "flip-flops"]
+    assert cc.timing is None
+    note = next(n for n in cc.notes if n.startswith("timing not checked"))
+    assert "nextpnr-ice40 could not place the netlist without hard multipliers" in note
+    assert "Unable to place cell 'x'" in note
+
+
 def _delay_line(n: int, w: int) -> str:
     """A core with the filter's ports: ``n`` registers in series, loaded with the valid."""
     regs = "\n".join(f"  reg [{w - 1}:0] r{j} = 0;" for j in range(n))
