@@ -79,6 +79,11 @@ class MappingPass:
     product or chunk with ``a < min_a_bits``, ``b < min_b_bits`` or a product narrower
     than ``min_product_bits`` is left to the next pass, and after the last pass to logic.
     A mapped product counts ``blocks`` device multipliers.
+
+    Where the device groups its multipliers into sites (the profile's
+    ``multiplier_sites``): ``per_site`` cells of this pass share one site, and
+    ``site_limit`` (0: none) is the most sites the place-and-route fills once any cell of
+    this pass is in the design.
     """
 
     a_bits: int
@@ -91,6 +96,8 @@ class MappingPass:
     signed_only: bool
     blocks: float
     source: str
+    per_site: float = 0.0
+    site_limit: int = 0
 
 
 @dataclass(frozen=True)
@@ -189,6 +196,10 @@ class DeviceProfile:
     # ``carry_route_through`` of those loaded from a carry-chain sum
     register_route_through: bool = False
     carry_route_through: float = 0.0
+    # sites the hard multiplier cells are placed in (``[counts] multiplier_sites``, Gowin
+    # DSP macros; 0: the blocks are counted alone), filled as the passes' ``per_site``
+    # and ``site_limit`` say
+    multiplier_sites: int = 0
     sources: dict = field(default_factory=dict, repr=False, compare=False)
     # how close the estimates came to the synthesis tools on this profile, as measured
     # (``"luts"``, ``"fmax"``: text with its source in ``sources["accuracy.<key>"]``)
@@ -294,7 +305,15 @@ _TOP_KEYS = (
     "accuracy",
 )
 _ACCURACY_KEYS = ("luts", "fmax")
-_COUNT_KEYS = ("luts", "lut_inputs", "flip_flops", "multipliers", "block_rams", "block_ram_bits")
+_COUNT_KEYS = (
+    "luts",
+    "lut_inputs",
+    "flip_flops",
+    "multipliers",
+    "block_rams",
+    "block_ram_bits",
+    "multiplier_sites",
+)
 _MULT_KEYS = (
     "a_bits",
     "b_bits",
@@ -317,7 +336,11 @@ _PASS_KEYS = (
     "signed_only",
     "blocks",
     "source",
+    "per_site",
+    "site_limit",
 )
+#: keys a multiplier pass may leave out (and their defaults)
+_PASS_OPTIONAL = {"per_site": 0.0, "site_limit": 0}
 _DELAY_KEYS = (
     "lut",
     "carry_entry",
@@ -476,7 +499,7 @@ def _passes(src: str, s: _Table, block: MultiplierBlock) -> tuple[MappingPass, .
         prefix = f"{s.field('multiplier_pass')}[{i}]"
         p = _Table(src, prefix, t, _PASS_KEYS, {})
         for key in _PASS_KEYS:
-            if key not in t:
+            if key not in t and key not in _PASS_OPTIONAL:
                 raise p.error(key, "is missing")
         ints = {}
         for key in _PASS_KEYS[:7]:
@@ -496,9 +519,23 @@ def _passes(src: str, s: _Table, block: MultiplierBlock) -> tuple[MappingPass, .
             raise p.error("blocks", f"must be a positive number, not {w!r}")
         if not isinstance(t["source"], str) or not t["source"].strip():
             raise p.error("source", f"must be a non-empty string, not {t['source']!r}")
+        per_site = t.get("per_site", 0.0)
+        bad = isinstance(per_site, bool) or not isinstance(per_site, (int, float))
+        if bad or per_site < 0 or ("per_site" in t and per_site == 0):
+            raise p.error("per_site", f"must be a positive number, not {per_site!r}")
+        limit = t.get("site_limit", 0)
+        if isinstance(limit, bool) or not isinstance(limit, int) or limit < 0:
+            raise p.error("site_limit", f"must be a non-negative integer, not {limit!r}")
         s.sources[prefix] = t["source"]
         out.append(
-            MappingPass(**ints, signed_only=t["signed_only"], blocks=float(w), source=t["source"])
+            MappingPass(
+                **ints,
+                signed_only=t["signed_only"],
+                blocks=float(w),
+                source=t["source"],
+                per_site=float(per_site),
+                site_limit=limit,
+            )
         )
     return tuple(out)
 
@@ -526,6 +563,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
     multipliers = c.integer("multipliers", 0)
     block_rams = c.integer("block_rams", 0)
     block_ram_bits = c.integer("block_ram_bits", 0)
+    sites = c.integer("multiplier_sites", 0) if "multiplier_sites" in c.table else 0
 
     m = top.sub("multiplier", _MULT_KEYS)
     a_bits, b_bits = m.integer("a_bits", 2), m.integer("b_bits", 2)
@@ -592,6 +630,15 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         timing_not_checked=" ".join(s.string("timing_not_checked", default="").split()),
     )
     passes = _passes(src, s, block)
+    if sites:
+        for i, mp in enumerate(passes):
+            if not mp.per_site:
+                raise FilterFileError(
+                    "is missing: counts.multiplier_sites is set, so every pass must say "
+                    "how many of its cells share one site",
+                    source=src,
+                    field=f"{s.field('multiplier_pass')}[{i}].per_site",
+                )
     accuracy = {}
     if "accuracy" in data:
         acc = top.sub("accuracy", _ACCURACY_KEYS)
@@ -627,6 +674,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         free_increment=free_increment,
         register_route_through=route_through,
         carry_route_through=carry_route,
+        multiplier_sites=sites,
         delay=delay,
         synthesis=flow,
         default_clock_mhz=clock,

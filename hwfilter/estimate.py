@@ -35,6 +35,7 @@ The estimate is a pass over the quantized signal-flow graph and a
 
 from __future__ import annotations
 
+import math
 from collections import Counter
 from dataclasses import dataclass, field, replace
 
@@ -51,6 +52,7 @@ __all__ = [
     "MultiplierUse",
     "Estimate",
     "map_product",
+    "multiplier_sites",
     "estimate",
 ]
 
@@ -87,6 +89,8 @@ class ProductMap:
     merge_tiles: tuple = ()
     # widths of the adders inside such chunks (they stay when the tiles join a sum)
     nested_adders: tuple = ()
+    # cells mapped by each pass, in the order of the profile's passes
+    pass_cells: tuple = ()
 
 
 def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
@@ -98,7 +102,7 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
     # the last field: the item is a chunk of a product split by an earlier pass
     pending = [(a_bits, b_bits, y_bits, True, True, 0, False)]
     blocks, cells, adders, levels, tiles, raw = 0.0, 0, [], 0, [], []
-    merge, nested = [], []
+    merge, nested, per_pass = [], [], []
     for p in passes:
         out = _PassResult()
         chunk = []
@@ -117,6 +121,7 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
                     merge.append(item[5])  # the chunk joins as one operand
         blocks += out.cells * p.blocks
         cells += out.cells
+        per_pass.append(out.cells)
         adders += out.adders
         raw += out.raw
         tiles += out.tiles
@@ -138,7 +143,37 @@ def map_product(a_bits: int, b_bits: int, y_bits: int, passes) -> ProductMap:
         tuple(raw),
         tuple(sorted(merge)),
         tuple(nested),
+        tuple(per_pass),
     )
+
+
+def multiplier_sites(profile: DeviceProfile, pass_cells) -> tuple[int, str]:
+    """The sites hard multiplier cells take, and why they do not place (empty: they do).
+
+    ``pass_cells`` counts the cells of each of the profile's mapping passes. Cells of one
+    shape (the passes' ``a_bits x b_bits``) fill whole sites, ``per_site`` to a site,
+    apart from other shapes; they must fit the profile's ``multiplier_sites``. Once a
+    cell of a pass with a ``site_limit`` is in the design, the cells that share sites
+    (``per_site`` of 1 or more; not those that span several) fill at most that many
+    (docs/estimates.md, DSP sites).
+    """
+    shares: Counter = Counter()  # sites' worth of cells, by cell shape
+    shared: Counter = Counter()  # the same, of the cells that share sites
+    limit, by = 0, ""
+    for p, n in zip(profile.mapping, pass_cells):
+        if n:
+            shares[(p.a_bits, p.b_bits)] += n / p.per_site
+            if p.per_site >= 1:
+                shared[(p.a_bits, p.b_bits)] += n / p.per_site
+            if p.site_limit and (not limit or p.site_limit < limit):
+                limit, by = p.site_limit, f"{p.a_bits}x{p.b_bits}"
+    used = sum(math.ceil(v - 1e-9) for v in shares.values())
+    if used > profile.multiplier_sites:
+        return used, f"the device has {profile.multiplier_sites}"
+    in_shared = sum(math.ceil(v - 1e-9) for v in shared.values())
+    if limit and in_shared > limit:
+        return used, f"with {by} cells in the mix, only {limit} sites take cells that share one"
+    return used, ""
 
 
 class _PassResult:
@@ -310,6 +345,8 @@ class Estimate:
     fit_problems: tuple
     products: tuple = field(default=(), repr=False)
     notes: tuple = ()
+    # sites (DSP macros) the hard cells take, where the profile groups blocks into sites
+    dsp_sites: int | None = None
 
     def as_dict(self) -> dict:
         return {
@@ -324,6 +361,7 @@ class Estimate:
             "adders": self.adders,
             "delays": self.delays,
             "dsp_blocks": self.dsp_blocks,
+            "dsp_sites": self.dsp_sites,
             "luts": self.luts,
             "lut_detail": dict(self.lut_detail),
             "registers": self.registers,
@@ -561,6 +599,15 @@ def estimate(
         problems.append(
             f"needs {model.dsp_blocks:g} multiplier blocks, the device has {profile.multipliers}"
         )
+    sites = None
+    if profile.multiplier_sites:
+        sites, why = multiplier_sites(profile, model.pass_cells)
+        if why and model.dsp_blocks <= profile.multipliers:
+            shapes = Counter()
+            for p, n in zip(profile.mapping, model.pass_cells):
+                shapes[f"{p.a_bits}x{p.b_bits}"] += n
+            cells = ", ".join(f"{n} {shape}" for shape, n in shapes.items() if n)
+            problems.append(f"its multiplier cells ({cells}) need {sites} multiplier sites; {why}")
     # the place-and-route's cells at the ends of every carry chain (profile, measured)
     model.lut_detail["carry chain ends"] = profile.chain_end_luts * model.chains
     if profile.register_route_through:
@@ -614,6 +661,7 @@ def estimate(
         fit_problems=tuple(problems),
         products=tuple(model.products),
         notes=tuple(notes),
+        dsp_sites=sites,
     )
 
 
@@ -756,6 +804,7 @@ class _Model:
         self.tile_sums_absorbed = 0
         self.chains = 0  # carry chains built (each costs the profile's chain_end_luts)
         self.dsp_blocks = 0.0
+        self.pass_cells = [0] * len(profile.mapping)  # hard cells by mapping pass
         self.products: list[MultiplierUse] = []
         self.notes: list[str] = []
         self._maps: dict[str, ProductMap] = {}
@@ -859,6 +908,8 @@ class _Model:
             impl = "hard" if m.cells else "logic"
             rows = 0 if m.cells else len(_twos_complement_ones(v))
             self.dsp_blocks += m.blocks
+            for i, c in enumerate(m.pass_cells):
+                self.pass_cells[i] += c
             if m.cells:
                 t = self.d.routing + self.d.multiplier
                 for w in m.partial_adders[: m.adder_levels]:

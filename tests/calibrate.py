@@ -104,6 +104,7 @@ def run_one(args):
     spec, form, section, pipe, device, timing, placement = args
     from hwfilter import synth
     from hwfilter.boards import load_profile
+    from hwfilter.estimate import estimate
     from hwfilter.pipeline import quantized_graph
 
     g = quantized_graph(spec, form=form, section=section)
@@ -125,6 +126,7 @@ def run_one(args):
     for r in cc.rows:
         row[r.metric] = [r.estimate, r.tool]
     row["cells"] = cc.synth.cells
+    row["fits"] = estimate(g, profile, pipelining=pipe).fits
     if cc.netlist is not None:
         row["netlist"] = cc.netlist.passed
     return row
@@ -296,6 +298,17 @@ def main(argv=None):
         )
     else:
         print()
+    if placed:
+        # the estimate's fits against whether nextpnr placed the design with DSP
+        wrong = [
+            f"{r['filter']} {r['form']} {r['section']}".strip()
+            + (" (fits, not placed)" if r["fits"] else " (placed, fits says no)")
+            for r in rows
+            if "error" not in r and r["fits"] != ("LUTs placed" in r)
+        ]
+        print(f"fits agrees with the placement on {len(rows) - len(wrong)} of {len(rows)}")
+        for w in wrong:
+            print(f"  {w}")
     if a.fit_delays:
         specs = {s.name: s for s, *_ in cases(a.sets.split(","))}
         fit_delays(rows, specs, a.device, a.fit_delays.split(","))

@@ -226,6 +226,24 @@ def _broken(tmp_path, old: str, new: str) -> str:
             "must be a list of strings",
         ),
         ('nextpnr = "ecp5"', 'nextpnr = ""', "synthesis.placed_luts", "needs a place-and-route"),
+        (
+            "block_ram_bits = {",
+            'multiplier_sites = { value = 8, source = "x" }\nblock_ram_bits = {',
+            "synthesis.multiplier_pass[0].per_site",
+            "is missing: counts.multiplier_sites is set",
+        ),
+        (
+            "min_a_bits = 2",
+            "min_a_bits = 2\nper_site = 0",
+            "synthesis.multiplier_pass[0].per_site",
+            "must be a positive number, not 0",
+        ),
+        (
+            "min_a_bits = 2",
+            "min_a_bits = 2\nsite_limit = 1.5",
+            "synthesis.multiplier_pass[0].site_limit",
+            "must be a non-negative integer, not 1.5",
+        ),
     ],
 )
 def test_bad_profile_names_file_field_problem(tmp_path, old, new, field, problem):

@@ -216,7 +216,12 @@ def render_estimate(e, profile) -> str:
         f"{e.pipelining}, multipliers {e.multiplier_mode}",
         f"  multipliers       {e.multipliers} (and {e.shifts} power-of-two gains as shifts); "
         f"{e.adders} two-input adders; {e.delays} delays",
-        f"  multiplier blocks {e.dsp_blocks:g} of {profile.multipliers}",
+        f"  multiplier blocks {e.dsp_blocks:g} of {profile.multipliers}"
+        + (
+            f" (in {e.dsp_sites} of {profile.multiplier_sites} sites)"
+            if e.dsp_sites is not None
+            else ""
+        ),
         f"  LUTs              {e.luts} of {profile.luts} ("
         + ", ".join(
             f"{k} {v}"
