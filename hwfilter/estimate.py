@@ -553,12 +553,14 @@ def estimate(
         for name in hp.registered:
             if model.single_block(name):
                 absorbed += ff.by_register.get(_reg_name(hp, name), {}).get("kept", 0)
-        # state registers load with an enable (the sample strobe): the flows do not pack
-        # them into the blocks (observed for iCE40 and 6-input-LUT parts)
+        # iCE40: state registers load with an enable (the sample strobe) and the flow
+        # does not pack them into the blocks (observed); Yosys xilinx_dsp on the
+        # 6-input-LUT part does (MREG, PREG, CREG, by bits: block_registers_absorbed)
     depth = profile.multiplier.block_registers
     if depth and multipliers == "auto":
-        for name in model.block_registers_absorbed(depth):
-            absorbed += ff.by_register.get(name, {}).get("kept", 0)
+        for name, lowest in model.block_registers_absorbed(depth, hp.registered).items():
+            kept = ff.by_register.get(name, {}).get("kept_bits", ())
+            absorbed += sum(1 for j in kept if j >= lowest)
     if absorbed:
         rb["absorbed"] = -absorbed
     registers = sum(rb.values())
@@ -798,6 +800,9 @@ class _Model:
         self._used_blocks: set[str] = set()
         self.pre_adds: set[str] = set()
         self.post_adds: dict[str, str] = {}  # sum in a block -> the word the block adds
+        # sum in a block -> its lowest column out of the block's adder (the other word's
+        # bits below it pass around the block)
+        self.post_add_lsb: dict[str, int] = {}
         self.times: dict[str, float] = {}
         self.luts = 0.0
         self.lut_detail = {"sums": 0.0, "quantizers": 0.0, "multipliers": 0.0}
@@ -951,9 +956,12 @@ class _Model:
             )
         )
 
-    def block_registers_absorbed(self, depth: int) -> set[str]:
+    def block_registers_absorbed(
+        self, depth: int, registered: frozenset = frozenset()
+    ) -> dict[str, int]:
         """Delays that leave the fabric when the flow copies up to ``depth`` registers in
-        series before each block multiplier's data input into the block.
+        series before each block multiplier's data input into the block, each with its
+        lowest bit that leaves (the bits below stay flip-flops).
 
         Yosys ``xilinx_dsp`` (AREG/BREG, DREG behind a pre-adder) takes the register
         driving a block's input, then the register driving that one, into the block,
@@ -962,6 +970,17 @@ class _Model:
         pre-adder (an adder, a quantizer, a product with chunks in logic), by a block
         whose copies stop before it, or by a delay that stays. Identical delays are one
         register (the tool merges them) read by all their readers.
+
+        Around a post-adder the match is by bits: the register the sum loads is the
+        block's output register (PREG) for the bits out of the adder, and the register
+        of the word the block adds is copied into it (CREG) for the bits the adder reads
+        (any contiguous run of a register's bits, sign extension left out). When the
+        product's low bits are known zeros, the other word's bits below them pass around
+        the block into the sum's low bits: those stay flip-flops in both registers.
+
+        A delay that stores a single-block product, the product's only reader, is the
+        block's register after the multiplier (MREG, matched before the post-adder), unless
+        the product has a pipeline register of its own (``registered``) in front of it.
         """
         g = self.g
         rep = self.rep
@@ -974,23 +993,44 @@ class _Model:
             m = self._maps.get(rep.get(u.name, u.name))
             return u.kind == "gain" and m is not None and m.cells > 0 and not m.logic_parts
 
-        # a sum the block adds, stored whole by a delay: that register is the block's
-        # output register (PREG, moved); the word it adds, when a delay, is copied into
-        # the block (CREG)
-        moved = set()
-        adds_c = {}
+        def bit_of(column: int, root, word) -> int:
+            """The bit of ``word`` at ``column`` of the sum ``root``."""
+            return max(column - root.format.frac + word.format.frac, 0)
+
+        # a sum the block adds, stored by a delay: that register is the block's output
+        # register (PREG, moved) from the adder's lowest column up; the word it adds,
+        # when a delay, is copied into the block (CREG) from that column up
+        moved: dict[str, int] = {}
+        adds_c: dict[str, tuple[str, int]] = {}
+        for n in g.of_kind("delay"):
+            src = n.inputs[0]
+            users = [u for u in g.users(src) if u.name not in self.dead]
+            if (
+                self.single_block(src)
+                and self._copies[rep[src]] == 1
+                and len(users) == 1
+                and src not in registered
+            ):
+                moved[rep[n.name]] = 0
         for root, other in self.post_adds.items():
+            r = g[root]
+            lsb = self.post_add_lsb[root]
             users = [u for u in g.users(root) if u.name not in self.dead]
             if len(users) == 1 and users[0].kind == "delay":
-                moved.add(rep[users[0].name])
+                moved[rep[users[0].name]] = bit_of(lsb, r, users[0])
             if other and other in rep and rep[other] in delays:
-                adds_c[root] = rep[other]
+                adds_c[root] = (rep[other], bit_of(lsb, r, g[other]))
         read_here = set()  # words read from the fabric by blocks, past their copies
         stays = set()
+        low: dict[str, int] = {}  # delays the fabric reads only below this bit
         for d in delays:
             for u in readers[d]:
-                if adds_c.get(u.name) == d:
-                    continue  # copied into the block as its C register
+                c_word, c_bit = adds_c.get(u.name, ("", 0))
+                if c_word == d:
+                    # copied into the block as its C register; bits below pass around
+                    if c_bit:
+                        low[d] = max(low.get(d, 0), c_bit)
+                    continue
                 copies = depth if block(u) else 1 if u.name in self.pre_adds else 0
                 if copies:
                     # behind a pre-adder one register (DREG/A2) is copied (counted so)
@@ -1004,13 +1044,23 @@ class _Model:
                     stays.add(d)
         stays |= read_here & delays
         changed = True
-        while changed:  # a delay read by a delay that stays stays too
+        while changed:  # a delay read by a delay that stays (in part) stays too
             changed = False
             for d in delays - stays:
-                if any(u.kind == "delay" and rep[u.name] in stays for u in readers[d]):
-                    stays.add(d)
-                    changed = True
-        return {d for d in delays - stays if readers[d]} | moved
+                for u in readers[d]:
+                    if u.kind != "delay" or rep[u.name] not in stays | low.keys():
+                        continue
+                    k = low.get(rep[u.name]) if rep[u.name] not in stays else None
+                    if k is None or g[u.name].format != g[d].format:
+                        stays.add(d)  # read whole (or at other offsets): stays
+                        changed = True
+                        break
+                    if low.get(d, 0) < k:
+                        low[d] = k
+                        changed = True
+        gone = {d: low.get(d, 0) for d in delays - stays if readers[d]}
+        gone.update(moved)  # packed first (xilinx_dsp_pack before xilinx_dsp_packC)
+        return gone
 
     def _pre_adders(self) -> set[str]:
         """Two-input sums the flow takes into a block's pre-adder (Yosys ``xilinx_dsp``):
@@ -1243,7 +1293,8 @@ class _Model:
                 self._used_blocks.add(dsp[0].dsp)
                 if root:
                     other = next(leaf for leaf in leaves if leaf is not dsp[0])
-                    self.post_adds[root] = other.node if not other.part else ""
+                    self.post_adds[root] = other.node
+                    self.post_add_lsb[root] = dsp[0].lsb
                 return luts, child_time + self.d.routing
         own, t = self._cluster(leaves, width, absorb=bool(root) and not self.adder_trees)
         if root and self._absorbed_here:

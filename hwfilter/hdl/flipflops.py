@@ -46,7 +46,8 @@ class FlipFlopCount:
     """Register bits of a plan, split by what synthesis does with them.
 
     ``words`` = ``constant + unused + duplicate + kept``; ``by_register`` maps each
-    register name to its ``{"bits", "constant", "unused", "duplicate", "kept"}``.
+    register name to its ``{"bits", "constant", "unused", "duplicate", "kept"}`` counts
+    and ``"kept_bits"``, the indices of its kept bits (bit 0 the lowest).
     """
 
     words: int
@@ -225,7 +226,8 @@ def flip_flop_count(graph: Graph, p: HardwarePlan) -> FlipFlopCount:
     totals = {"constant": 0, "unused": 0, "duplicate": 0, "kept": 0}
     for name, _, ids, _, _ in registers:
         c = {"bits": len(ids), "constant": 0, "unused": 0, "duplicate": 0, "kept": 0}
-        for b in ids:
+        kept_bits = []
+        for j, b in enumerate(ids):
             if b == _ZERO:
                 c["constant"] += 1
             elif b not in used:
@@ -234,8 +236,9 @@ def flip_flop_count(graph: Graph, p: HardwarePlan) -> FlipFlopCount:
                 c["duplicate"] += 1
             else:
                 c["kept"] += 1
+                kept_bits.append(j)
                 seen.add(b)
-        by_register[name] = c
+        by_register[name] = {**c, "kept_bits": tuple(kept_bits)}
         for k in totals:
             totals[k] += c[k]
     control = p.register_bits["control"]
@@ -245,6 +248,7 @@ def flip_flop_count(graph: Graph, p: HardwarePlan) -> FlipFlopCount:
         "unused": 0,
         "duplicate": 0,
         "kept": control,
+        "kept_bits": tuple(range(control)),
     }
     totals["kept"] += control
     words_total = sum(c["bits"] for c in by_register.values())
