@@ -200,6 +200,9 @@ class DeviceProfile:
     # DSP macros; 0: the blocks are counted alone), filled as the passes' ``per_site``
     # and ``site_limit`` say
     multiplier_sites: int = 0
+    # LUTs per full-adder column of a compressor tree, measured on the family's sums
+    # (``[logic] full_adder_luts``; None: two LUT4 or one LUT6 plus 0.2 per tree level)
+    full_adder_luts: float | None = None
     sources: dict = field(default_factory=dict, repr=False, compare=False)
     # how close the estimates came to the synthesis tools on this profile, as measured
     # (``"luts"``, ``"fmax"``: text with its source in ``sources["accuracy.<key>"]``)
@@ -589,6 +592,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
             "free_increment",
             "register_route_through",
             "carry_route_through",
+            "full_adder_luts",
         ),
     )
     carry = lg.integer("carry_bits_per_cell", 1)
@@ -600,6 +604,8 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         carry_route = lg.delay("carry_route_through")
         if carry_route > 1:
             raise lg.error("carry_route_through", f"value must be at most 1, not {carry_route!r}")
+
+    full_adder = lg.delay("full_adder_luts", positive=True) if "full_adder_luts" in lg.table else None
 
     d = top.sub("delay", _DELAY_KEYS)
     delay = DelayModel(**{k: d.delay(k) for k in _DELAY_KEYS})
@@ -675,6 +681,7 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         register_route_through=route_through,
         carry_route_through=carry_route,
         multiplier_sites=sites,
+        full_adder_luts=full_adder,
         delay=delay,
         synthesis=flow,
         default_clock_mhz=clock,

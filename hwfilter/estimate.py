@@ -431,6 +431,20 @@ def _plain(node: _Bin) -> bool:
     return node.a.lsb == node.b.lsb or (node.op == "-" and node.b.lsb < node.a.lsb)
 
 
+def _operands(node: _Bin) -> list:
+    """The two operands of ``node`` as the sum reads them: ``(operand, lsb, whole,
+    negated)``, the operand read from column ``lsb`` (in part when above its own)."""
+    a, b = node.a, node.b
+    if a.lsb == b.lsb:
+        return [(a, a.lsb, True, False), (b, b.lsb, True, node.op == "-")]
+    if a.lsb < b.lsb:  # a's low bits pass through; its upper part is added
+        return [(a, b.lsb, False, False), (b, b.lsb, True, node.op == "-")]
+    if node.op == "+":  # b's low bits pass through
+        return [(a, a.lsb, True, False), (b, a.lsb, False, False)]
+    # (a << d) - b: the shifted a is read in part, -b needs the whole chain
+    return [(a, a.lsb, False, False), (b, b.lsb, True, True)]
+
+
 def _pair_tree(terms: list):
     """The balanced tree over signed ``terms`` ``(sign, operand)``, as the hardware pass
     pairs them: equal signs add (keeping the sign), unequal ones subtract the negative
@@ -797,6 +811,11 @@ class _Model:
         # Yosys's iCE40 DSP packing (techlibs/ice40/ice40_dsp.pmg) has its own rules for
         # the addition it takes into a block: see _tree_cost and _gain
         self.ice40_dsp = self.adder_trees and profile.family == "ice40"
+        # Yosys synth_ice40 -dsp runs alumacc again after ice40_dsp: the additions the
+        # blocks did not take merge into multi-operand sums (observed 2026-12-03; the
+        # generic part's flow does the same, but modelling it there fitted worse, see
+        # docs/estimates.md)
+        self.merge_after_dsp = self.ice40_dsp
         self._used_blocks: set[str] = set()
         self.pre_adds: set[str] = set()
         self.post_adds: dict[str, str] = {}  # sum in a block -> the word the block adds
@@ -833,6 +852,8 @@ class _Model:
         levels (deeper trees cost no more per column). Fitted on the Yosys 0.70
         synth_ecp5 netlists of the calibration designs, see docs/estimates.md.
         """
+        if self.p.full_adder_luts is not None:
+            return self.p.full_adder_luts
         return self.fa_luts + 0.2 * min(levels, 3)
 
     def carry(self, bits: int) -> float:
@@ -1244,29 +1265,24 @@ class _Model:
                 elif negated:
                     node = replace(node, negated=True)
                 leaves.append(node)
-            elif whole and _plain(node) and not self.adder_trees:
+            elif whole and _plain(node) and self._merges(node, min(node.msb, width), in_block):
                 gather(node)  # a plain word (no bits passed around the adder): merges
             else:
-                sub_luts, sub_t = self._tree_cost(node, min(node.msb, width), [], "")
+                sub = min(node.msb, width)
+                # a sum a block adds comes out of the block, not out of a carry chain
+                late = not (self.merge_after_dsp and self._absorbs(node, sub))
+                sub_luts, sub_t = self._tree_cost(node, sub, [], "")
                 luts += sub_luts
                 child_time = max(child_time, sub_t)
-                leaves.append(_Leaf(lsb, node.msb, negated=negated, late=True))
+                leaves.append(_Leaf(lsb, node.msb, negated=negated, late=late))
 
         def gather(node):
-            a, b = node.a, node.b
-            if a.lsb == b.lsb:
-                operand(a, a.lsb, True)
-                operand(b, b.lsb, True, node.op == "-")
-            elif a.lsb < b.lsb:  # a's low bits pass through; its upper part is added
-                operand(a, b.lsb, False)
-                operand(b, b.lsb, True, node.op == "-")
-            elif node.op == "+":  # b's low bits pass through
-                operand(a, a.lsb, True)
-                operand(b, a.lsb, False)
-            else:  # (a << d) - b: the shifted a is read in part, -b needs the whole chain
-                operand(a, a.lsb, False)
-                operand(b, b.lsb, True, True)
+            for args in _operands(node):
+                operand(*args)
 
+        # with a flow that splits sums into two-input adders before its DSP packing, an
+        # addition a block takes keeps its two operands apart; the others merge again
+        in_block = self.merge_after_dsp and not extra and self._absorbs(tree, width)
         if isinstance(tree, _Leaf):
             operand(tree, tree.lsb, True, tree.negated)
         else:
@@ -1300,6 +1316,44 @@ class _Model:
         if root and self._absorbed_here:
             self._absorbed_sums.add(root)
         return luts + own, child_time + t
+
+    def _merges(self, node, width: int, parent_in_block: bool) -> bool:
+        """Whether a plain word read whole joins the sum that reads it (one multi-operand
+        sum). Without the split into two-input adders, always. With it (Yosys
+        ``alumacc -macc-only; maccmap -unmap`` before DSP packing), the flow's later
+        ``alumacc`` merges again the additions its DSP packing left: an addition a block
+        takes (the word's or the reader's) stays apart (Yosys 0.70 synth_ice40 -dsp,
+        observed 2026-12-03: a 7-operand ``$macc`` after ``ice40_dsp`` in the ``lp4``
+        direct form I)."""
+        if not self.adder_trees:
+            return True
+        if not self.merge_after_dsp or parent_in_block:
+            return False
+        return not self._absorbs(node, width)
+
+    def _absorbs(self, node, width: int) -> bool:
+        """Whether the flow's DSP packing takes two-input addition ``node`` (of a
+        ``width``-column sum) into a block: the rule the end of ``_tree_cost`` applies
+        (an addition, no subtraction, of a single-block product read whole and alone)."""
+        if not isinstance(node, _Bin) or not self.p.multiplier.absorbs_post_adder:
+            return False
+        if width > max(self.p.multiplier.accumulator_bits, 1):
+            return False
+        ops = _operands(node)
+        if any(neg or getattr(n, "negated", False) for n, _, _, neg in ops):
+            return False
+        for n, lsb, _, _ in ops:
+            if (
+                isinstance(n, _Leaf)
+                and n.dsp
+                and n.alone
+                and not n.part
+                and (lsb == n.lsb or len(n.rows) != 1)
+                and n.dsp not in self._used_blocks
+                and (not self.ice40_dsp or self._full_width(n.dsp, width))
+            ):
+                return True
+        return False
 
     def _cluster(self, leaves: list, width: int, *, absorb: bool) -> tuple[float, float]:
         """LUTs and delay of one multi-operand sum (a compressor tree and a carry adder).
