@@ -1399,6 +1399,8 @@ class _Model:
         final = max(width - low, 0)
         self.chains += final > 0
         late = sum(len(leaf.rows) for leaf in leaves if leaf.late) / len(lsbs)
+        if self.p.full_adder_luts is not None:
+            late = 0.0  # a column cost measured on the family's sums stands alone
         luts = self.fa_cost(levels) * fa_columns * (1 + LATE_OPERANDS * late) + final
         t = d.routing + levels * (d.lut + d.routing) + self.carry(final)
         return luts, t
