@@ -445,13 +445,31 @@ def _operands(node: _Bin) -> list:
     return [(a, a.lsb, False, False), (b, b.lsb, True, True)]
 
 
+@dataclass
+class _Zero:
+    """A constant-zero term of a sum, at column ``lsb`` (see ``_pair_tree``)."""
+
+    lsb: int
+
+
 def _pair_tree(terms: list):
     """The balanced tree over signed ``terms`` ``(sign, operand)``, as the hardware pass
     pairs them: equal signs add (keeping the sign), unequal ones subtract the negative
-    operand from the positive one. Returns ``(sign, tree)``."""
+    operand from the positive one. Returns ``(sign, tree)``.
+
+    A term ``_Zero`` is a constant zero the hardware pass still pairs (its adder reads
+    the other term alone, and the tool removes it): the pair is the other term."""
     while len(terms) > 1:
         nxt = []
         for (sa, a), (sb, b) in zip(terms[0::2], terms[1::2]):
+            if isinstance(a, _Zero) or isinstance(b, _Zero):
+                (s, t), z = ((sa, a), b) if isinstance(b, _Zero) else ((sb, b), a)
+                if isinstance(t, _Leaf) and t.dsp and z.lsb < t.lsb:
+                    # the adder reads the word over the zero's lower columns (constant
+                    # bits below its lowest): no block takes that addition
+                    t = replace(t, dsp="")
+                nxt.append((s, t))
+                continue
             lo, hi = min(a.lsb, b.lsb), max(a.msb, b.msb) + 1
             if sa == sb:
                 nxt.append((sa, _Bin(a, b, "+", lo, hi)))
@@ -877,12 +895,19 @@ class _Model:
             t += self.d.routing + self.carry(max(m.nested_adders))
         self.times[name] = t
 
-    def _full_width(self, name: str, width: int) -> bool:
-        """ice40_dsp's width rule: a sum wider than the product it takes into the block
-        needs the product at its natural width (input bits plus constant bits)."""
+    def _block_takes(self, name: str, other_bits: int) -> bool:
+        """ice40_dsp's width rule for the addition a block takes: the word added to the
+        product may be no wider than the product's used bits, unless the product has its
+        natural width (the multiplier's operand widths summed). Yosys strips a constant's
+        trailing zeros before packing, so both widths leave out the product's known-zero
+        low bits (Yosys 0.70 techlibs/ice40/ice40_dsp.pmg compares the other operand's
+        port width, not the sum's; observed 2026-12-03 on fir15 direct form: a 24-bit
+        product plus a 25-bit one goes into the 25-bit product's block)."""
         n = self.g[name]
-        natural = self.g[n.inputs[0]].format.bits + abs(n.value).bit_length() + 1
-        return width <= n.format.bits or n.format.bits >= natural
+        src = self.g[n.inputs[0]]
+        used = n.format.bits - self.zeros[name]
+        natural = src.format.bits - self.zeros[src.name] + _odd_width(n.value)[0]
+        return other_bits <= used or used >= natural
 
     def _only_reader(self, name: str):
         users = self.g.users(name)
@@ -1156,7 +1181,12 @@ class _Model:
         for sign, src in zip(n.signs, n.inputs):
             sn = g[src]
             if src in self.dead:
-                continue  # a constant zero: no operand
+                # a constant zero: no operand, but with Yosys's iCE40 DSP packing the
+                # two-input adders it leaves stay as written, so it keeps its place in
+                # the pairing (fir15 direct form, observed 2026-12-03)
+                if self.ice40_dsp:
+                    out.append((sign, _Zero(frac - sn.format.frac + self.zeros[src])))
+                continue
             off = frac - sn.format.frac
             z = self.zeros[src]  # known-zero low bits enter as wiring, not as adder inputs
             if sn.kind == "add" and self._merged_adds.get(src) == name:
@@ -1164,7 +1194,7 @@ class _Model:
                 if not sub_terms:
                     continue
                 sub_sign, sub = _pair_tree(sub_terms)
-                out.append((sign * sub_sign, sub))
+                out.append((sign * sub_sign, sub))  # maybe a _Zero: a sum of constant zeros
             elif sn.kind == "gain" and self._in_logic(src) and self._only_reader(src) is n:
                 rows = self._rows_of_gain(sn)
                 zin = self.zeros[sn.inputs[0]]
@@ -1210,6 +1240,8 @@ class _Model:
             if not terms:
                 continue  # a sum of constant zeros
             sign, tree = _pair_tree(terms)
+            if isinstance(tree, _Zero):
+                continue  # a sum of constant zeros
             if sign < 0 and isinstance(tree, _Leaf):  # a negation
                 tree = replace(tree, negated=True)
             width = root.format.bits
@@ -1301,7 +1333,13 @@ class _Model:
                 if leaf.dsp and leaf.alone and not leaf.part and leaf.dsp not in self._used_blocks
             ]
             if self.ice40_dsp:
-                dsp = [leaf for leaf in dsp if self._full_width(leaf.dsp, width)]
+                dsp = [
+                    leaf
+                    for leaf in dsp
+                    if self._block_takes(
+                        leaf.dsp, max(o.msb - o.lsb for o in leaves if o is not leaf)
+                    )
+                ]
             if any(leaf.negated for leaf in leaves):
                 dsp = []
             if dsp:
@@ -1342,7 +1380,8 @@ class _Model:
         ops = _operands(node)
         if any(neg or getattr(n, "negated", False) for n, _, _, neg in ops):
             return False
-        for n, lsb, _, _ in ops:
+        for i, (n, lsb, _, _) in enumerate(ops):
+            other, olsb = ops[1 - i][0], ops[1 - i][1]
             if (
                 isinstance(n, _Leaf)
                 and n.dsp
@@ -1350,7 +1389,7 @@ class _Model:
                 and not n.part
                 and (lsb == n.lsb or len(n.rows) != 1)
                 and n.dsp not in self._used_blocks
-                and (not self.ice40_dsp or self._full_width(n.dsp, width))
+                and (not self.ice40_dsp or self._block_takes(n.dsp, other.msb - olsb))
             ):
                 return True
         return False

