@@ -605,7 +605,9 @@ def _profile(src: str, data: dict) -> DeviceProfile:
         if carry_route > 1:
             raise lg.error("carry_route_through", f"value must be at most 1, not {carry_route!r}")
 
-    full_adder = lg.delay("full_adder_luts", positive=True) if "full_adder_luts" in lg.table else None
+    full_adder = None
+    if "full_adder_luts" in lg.table:
+        full_adder = lg.delay("full_adder_luts", positive=True)
 
     d = top.sub("delay", _DELAY_KEYS)
     delay = DelayModel(**{k: d.delay(k) for k in _DELAY_KEYS})

@@ -227,6 +227,12 @@ def _broken(tmp_path, old: str, new: str) -> str:
         ),
         ('nextpnr = "ecp5"', 'nextpnr = ""', "synthesis.placed_luts", "needs a place-and-route"),
         (
+            "chain_end_luts = { value = 4,",
+            'full_adder_luts = { value = 0, source = "x" }\nchain_end_luts = { value = 4,',
+            "logic.full_adder_luts",
+            "value must be positive, not 0",
+        ),
+        (
             "block_ram_bits = {",
             'multiplier_sites = { value = 8, source = "x" }\nblock_ram_bits = {',
             "synthesis.multiplier_pass[0].per_site",
