@@ -37,3 +37,58 @@ def test_example_checks_and_simulates(path, capsys):
     # the shipped word lengths leave at least 60 dB between signal and error on a busy
     # half-scale input (common practice: a 16-bit path should stay well above 60 dB)
     assert s["sqnr_db"] > 60, spec.name
+
+
+def _compare_cases(all_profiles: bool):
+    from hwfilter.boards import profile_names
+
+    names = profile_names()
+    for i, path in enumerate(FILES):
+        # the default run pairs each example with one profile (every profile is used);
+        # the slow run covers every pair
+        for j, name in enumerate(names):
+            if all_profiles or j == i % len(names):
+                yield path, name
+
+
+def _check_compare(path, device, capsys):
+    # the estimate command answers the realization question for the example on the
+    # device: every applicable realization, each with the fields scripts read, and a
+    # fits verdict that agrees with the counts it reports
+    from hwfilter.boards import load_profile
+    from hwfilter.pipeline import applicable_realizations
+
+    spec = load(path)
+    assert main(["estimate", str(path), "--device", device, "--compare", "--json"]) == 0
+    rows = json.loads(capsys.readouterr().out)
+    assert [(r["form"], r["section"]) for r in rows] == list(applicable_realizations(spec))
+    p = load_profile(device)
+    for r in rows:
+        assert r["device"] == device
+        assert r["multipliers"] >= 0 and r["luts"] > 0 and r["registers"] > 0
+        assert r["fmax_mhz"] > 0 and r["latency_cycles"] >= 1
+        over = r["dsp_blocks"] > p.multipliers or r["luts"] > p.luts
+        over = over or r["registers"] > p.flip_flops
+        assert r["fits"] == (not r["fit_problems"])
+        if over:
+            assert not r["fits"]
+        assert "sqnr_db" in r and "stable" in r
+
+
+@pytest.mark.parametrize(
+    "path, device",
+    list(_compare_cases(False)),
+    ids=[f"{p.stem}-{d}" for p, d in _compare_cases(False)],
+)
+def test_compare_answers_on_a_profile(path, device, capsys):
+    _check_compare(path, device, capsys)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "path, device",
+    list(_compare_cases(True)),
+    ids=[f"{p.stem}-{d}" for p, d in _compare_cases(True)],
+)
+def test_compare_answers_on_every_profile(path, device, capsys):
+    _check_compare(path, device, capsys)
