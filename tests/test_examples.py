@@ -39,16 +39,16 @@ def test_example_checks_and_simulates(path, capsys):
     assert s["sqnr_db"] > 60, spec.name
 
 
-def _compare_cases(all_profiles: bool):
+def _compare_cases():
+    """Every example with every profile; the default run keeps one profile per example
+    (every profile used), the other pairs are slow."""
     from hwfilter.boards import profile_names
 
     names = profile_names()
     for i, path in enumerate(FILES):
-        # the default run pairs each example with one profile (every profile is used);
-        # the slow run covers every pair
         for j, name in enumerate(names):
-            if all_profiles or j == i % len(names):
-                yield path, name
+            marks = () if j == i % len(names) else (pytest.mark.slow,)
+            yield pytest.param(path, name, marks=marks, id=f"{path.stem}-{name}")
 
 
 def _check_compare(path, device, capsys):
@@ -75,20 +75,6 @@ def _check_compare(path, device, capsys):
         assert "sqnr_db" in r and "stable" in r
 
 
-@pytest.mark.parametrize(
-    "path, device",
-    list(_compare_cases(False)),
-    ids=[f"{p.stem}-{d}" for p, d in _compare_cases(False)],
-)
-def test_compare_answers_on_a_profile(path, device, capsys):
-    _check_compare(path, device, capsys)
-
-
-@pytest.mark.slow
-@pytest.mark.parametrize(
-    "path, device",
-    list(_compare_cases(True)),
-    ids=[f"{p.stem}-{d}" for p, d in _compare_cases(True)],
-)
+@pytest.mark.parametrize("path, device", list(_compare_cases()))
 def test_compare_answers_on_every_profile(path, device, capsys):
     _check_compare(path, device, capsys)

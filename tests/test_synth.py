@@ -738,18 +738,35 @@ def test_carry_chains_counted_as_yosys_builds_them(form, section, order, slack, 
     assert estimate(g, load_profile("ice40-up5k")).lut_detail["carry chain ends"] == 0
 
 
+def _ice40_dsp_netlist(yosys, g, work):
+    """Yosys 0.70 synth_ice40 -dsp of the graph's Verilog: its cells, its SB_MAC16
+    blocks and how many of them output their adder (TOPOUTPUT_SELECT not 11)."""
+    import json
+
+    (work / "d.v").write_text(generate_verilog(g))
+    top = module_name(g)
+    script = (
+        f"read_verilog d.v; synth_ice40 -dsp -top {top}; select {top}; write_json -selected d.json"
+    )
+    r = subprocess.run([yosys, "-q", "-p", script], cwd=work, capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    cells = list(json.loads((work / "d.json").read_text())["modules"][top]["cells"].values())
+    macs = [c for c in cells if c["type"] == "SB_MAC16"]
+    with_adder = sum(1 for c in macs if c["parameters"].get("TOPOUTPUT_SELECT") != "11")
+    return cells, macs, with_adder
+
+
 @pytest.mark.tool
 @pytest.mark.parametrize("bits, state", [(14, 16), (18, 24)])
 @pytest.mark.parametrize("form", ["direct-form-1", "direct-form-2", "transposed-direct-form-2"])
 def test_ice40_additions_in_blocks(form, bits, state, tmp_path):
     """Additions the estimate puts inside SB_MAC16 blocks (Yosys ice40_dsp's rules: an
-    $add reading a single-block product whole, the sum no wider than the product unless
-    the product has its natural width; a tile sum reading a tile's own product) against
-    the blocks of Yosys 0.70's synth_ice40 -dsp netlist whose output is the adder
-    (independent tool). Measured: 0 of 0 at 14-bit coefficients and 16-bit states (the
-    sums are wider than the trimmed products), 3 to 6 predicted against 1 to 4 at 18 and
-    24 bits (tile sums); before these rules 2 were predicted for 0."""
-    import json
+    $add reading a single-block product whole, the word it adds no wider than the
+    product's used bits unless the product has its natural width; a tile sum reading a
+    tile's own product) against the blocks of Yosys 0.70's synth_ice40 -dsp netlist
+    whose output is the adder (independent tool). Measured: 0 of 0 at 14-bit
+    coefficients and 16-bit states, 3 to 6 predicted against 1 to 4 at 18 and 24 bits
+    (tile sums); before these rules 2 were predicted for 0."""
 
     from hwfilter.estimate import _Model
 
@@ -760,16 +777,7 @@ def test_ice40_additions_in_blocks(form, bits, state, tmp_path):
     m = _Model(g, p, "auto")
     m.run()
     predicted = len(m._used_blocks) + m.tile_sums_absorbed
-    (tmp_path / "d.v").write_text(generate_verilog(g))
-    top = module_name(g)
-    script = (
-        f"read_verilog d.v; synth_ice40 -dsp -top {top}; select {top}; write_json -selected d.json"
-    )
-    r = subprocess.run([yosys, "-q", "-p", script], cwd=tmp_path, capture_output=True, text=True)
-    assert r.returncode == 0, r.stderr
-    cells = json.loads((tmp_path / "d.json").read_text())["modules"][top]["cells"].values()
-    macs = [c for c in cells if c["type"] == "SB_MAC16"]
-    with_adder = sum(1 for c in macs if c["parameters"].get("TOPOUTPUT_SELECT") != "11")
+    cells, macs, with_adder = _ice40_dsp_netlist(yosys, g, tmp_path)
     assert len(macs) == estimate(g, p).dsp_blocks
     assert with_adder <= predicted <= with_adder + 2, (predicted, with_adder)
     if bits == 14:
@@ -785,7 +793,6 @@ def test_ice40_fir_direct_sum_in_blocks(tmp_path):
     goes into the 25-bit product's block: its width rule compares the other operand's
     width, not the sum's). Before this rule the estimate put no addition in a block and
     came out at 1.34 of Yosys's LUTs."""
-    import json
 
     from hwfilter.estimate import _Model
     from hwfilter.pipeline import quantized_graph
@@ -796,16 +803,7 @@ def test_ice40_fir_direct_sum_in_blocks(tmp_path):
     p = load_profile("ice40-up5k")
     m = _Model(g, p, "auto")
     m.run()
-    (tmp_path / "d.v").write_text(generate_verilog(g))
-    top = module_name(g)
-    script = (
-        f"read_verilog d.v; synth_ice40 -dsp -top {top}; select {top}; write_json -selected d.json"
-    )
-    r = subprocess.run([yosys, "-q", "-p", script], cwd=tmp_path, capture_output=True, text=True)
-    assert r.returncode == 0, r.stderr
-    cells = json.loads((tmp_path / "d.json").read_text())["modules"][top]["cells"].values()
-    macs = [c for c in cells if c["type"] == "SB_MAC16"]
-    with_adder = sum(1 for c in macs if c["parameters"].get("TOPOUTPUT_SELECT") != "11")
+    cells, macs, with_adder = _ice40_dsp_netlist(yosys, g, tmp_path)
     luts = sum(1 for c in cells if c["type"] == "SB_LUT4")
     e = estimate(g, p)
     assert len(macs) == e.dsp_blocks
