@@ -342,8 +342,8 @@ _PASS_KEYS = (
     "per_site",
     "site_limit",
 )
-#: keys a multiplier pass may leave out (and their defaults)
-_PASS_OPTIONAL = {"per_site": 0.0, "site_limit": 0}
+#: keys a multiplier pass may leave out
+_PASS_OPTIONAL = ("per_site", "site_limit")
 _DELAY_KEYS = (
     "lut",
     "carry_entry",
@@ -522,9 +522,10 @@ def _passes(src: str, s: _Table, block: MultiplierBlock) -> tuple[MappingPass, .
             raise p.error("blocks", f"must be a positive number, not {w!r}")
         if not isinstance(t["source"], str) or not t["source"].strip():
             raise p.error("source", f"must be a non-empty string, not {t['source']!r}")
-        per_site = t.get("per_site", 0.0)
-        bad = isinstance(per_site, bool) or not isinstance(per_site, (int, float))
-        if bad or per_site < 0 or ("per_site" in t and per_site == 0):
+        per_site = t.get("per_site", 0.0)  # 0: not given
+        if "per_site" in t and (
+            isinstance(per_site, bool) or not isinstance(per_site, (int, float)) or per_site <= 0
+        ):
             raise p.error("per_site", f"must be a positive number, not {per_site!r}")
         limit = t.get("site_limit", 0)
         if isinstance(limit, bool) or not isinstance(limit, int) or limit < 0:

@@ -158,22 +158,29 @@ def multiplier_sites(profile: DeviceProfile, pass_cells) -> tuple[int, str]:
     (docs/estimates.md, DSP sites).
     """
     shares: Counter = Counter()  # sites' worth of cells, by cell shape
-    shared: Counter = Counter()  # the same, of the cells that share sites
+    cells: Counter = Counter()  # cells, by cell shape
+    spanning = set()  # shapes whose cells span several sites
     limit, by = 0, ""
     for p, n in zip(profile.mapping, pass_cells):
         if n:
-            shares[(p.a_bits, p.b_bits)] += n / p.per_site
-            if p.per_site >= 1:
-                shared[(p.a_bits, p.b_bits)] += n / p.per_site
+            shape = f"{p.a_bits}x{p.b_bits}"
+            shares[shape] += n / p.per_site
+            cells[shape] += n
+            if p.per_site < 1:
+                spanning.add(shape)
             if p.site_limit and (not limit or p.site_limit < limit):
-                limit, by = p.site_limit, f"{p.a_bits}x{p.b_bits}"
-    used = sum(math.ceil(v - 1e-9) for v in shares.values())
+                limit, by = p.site_limit, shape
+    sites = {shape: math.ceil(v - 1e-9) for shape, v in shares.items()}
+    used = sum(sites.values())
+    why = ""
     if used > profile.multiplier_sites:
-        return used, f"the device has {profile.multiplier_sites}"
-    in_shared = sum(math.ceil(v - 1e-9) for v in shared.values())
-    if limit and in_shared > limit:
-        return used, f"with {by} cells in the mix, only {limit} sites take cells that share one"
-    return used, ""
+        why = f"the device has {profile.multiplier_sites}"
+    elif limit and sum(n for shape, n in sites.items() if shape not in spanning) > limit:
+        why = f"with {by} cells in the mix, only {limit} sites take cells that share one"
+    if why:
+        mix = ", ".join(f"{n} {shape}" for shape, n in cells.items())
+        why = f"its multiplier cells ({mix}) need {used} multiplier sites; {why}"
+    return used, why
 
 
 class _PassResult:
@@ -637,11 +644,7 @@ def estimate(
     if profile.multiplier_sites:
         sites, why = multiplier_sites(profile, model.pass_cells)
         if why and model.dsp_blocks <= profile.multipliers:
-            shapes = Counter()
-            for p, n in zip(profile.mapping, model.pass_cells):
-                shapes[f"{p.a_bits}x{p.b_bits}"] += n
-            cells = ", ".join(f"{n} {shape}" for shape, n in shapes.items() if n)
-            problems.append(f"its multiplier cells ({cells}) need {sites} multiplier sites; {why}")
+            problems.append(why)
     # the place-and-route's cells at the ends of every carry chain (profile, measured)
     model.lut_detail["carry chain ends"] = profile.chain_end_luts * model.chains
     if profile.register_route_through:
@@ -1327,19 +1330,8 @@ class _Model:
         ):
             # Yosys ice40_dsp and xilinx_dsp take an $add (not a subtraction) that reads
             # the product whole from its lowest bit, the product's only reader
-            dsp = [
-                leaf
-                for leaf in leaves
-                if leaf.dsp and leaf.alone and not leaf.part and leaf.dsp not in self._used_blocks
-            ]
-            if self.ice40_dsp:
-                dsp = [
-                    leaf
-                    for leaf in dsp
-                    if self._block_takes(
-                        leaf.dsp, max(o.msb - o.lsb for o in leaves if o is not leaf)
-                    )
-                ]
+            a, b = leaves
+            dsp = [x for x, y in ((a, b), (b, a)) if self._block_adds(x, y.msb - y.lsb)]
             if any(leaf.negated for leaf in leaves):
                 dsp = []
             if dsp:
@@ -1380,19 +1372,26 @@ class _Model:
         ops = _operands(node)
         if any(neg or getattr(n, "negated", False) for n, _, _, neg in ops):
             return False
-        for i, (n, lsb, _, _) in enumerate(ops):
-            other, olsb = ops[1 - i][0], ops[1 - i][1]
+        for (n, lsb, _, _), (other, olsb, _, _) in zip(ops, ops[::-1]):
             if (
                 isinstance(n, _Leaf)
-                and n.dsp
-                and n.alone
-                and not n.part
                 and (lsb == n.lsb or len(n.rows) != 1)
-                and n.dsp not in self._used_blocks
-                and (not self.ice40_dsp or self._block_takes(n.dsp, other.msb - olsb))
+                and self._block_adds(n, other.msb - olsb)
             ):
                 return True
         return False
+
+    def _block_adds(self, leaf: _Leaf, other_bits: int) -> bool:
+        """Whether the block of product ``leaf`` can add a word of ``other_bits`` to it:
+        a single-block product read alone and whole, its block not yet adding, and on
+        iCE40 ice40_dsp's width rule (``_block_takes``)."""
+        return (
+            bool(leaf.dsp)
+            and leaf.alone
+            and not leaf.part
+            and leaf.dsp not in self._used_blocks
+            and (not self.ice40_dsp or self._block_takes(leaf.dsp, other_bits))
+        )
 
     def _cluster(self, leaves: list, width: int, *, absorb: bool) -> tuple[float, float]:
         """LUTs and delay of one multi-operand sum (a compressor tree and a carry adder).
@@ -1437,9 +1436,9 @@ class _Model:
         fa_columns, levels, _ = _compressor(lsbs, width)
         final = max(width - low, 0)
         self.chains += final > 0
-        late = sum(len(leaf.rows) for leaf in leaves if leaf.late) / len(lsbs)
-        if self.p.full_adder_luts is not None:
-            late = 0.0  # a column cost measured on the family's sums stands alone
+        late = 0.0  # a column cost measured on the family's sums stands alone
+        if self.p.full_adder_luts is None:
+            late = sum(len(leaf.rows) for leaf in leaves if leaf.late) / len(lsbs)
         luts = self.fa_cost(levels) * fa_columns * (1 + LATE_OPERANDS * late) + final
         t = d.routing + levels * (d.lut + d.routing) + self.carry(final)
         return luts, t
